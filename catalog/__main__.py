@@ -1,0 +1,3 @@
+from gravicat.cli import main
+
+main()

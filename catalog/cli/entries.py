@@ -1,0 +1,219 @@
+"""Catalogue commands: init, add, list, show, remove."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from gravicat.cli._base import app_context, reports_errors
+from gravicat.cli._output import emit_json, emit_table, short
+from gravicat.errors import InputError
+
+app = typer.Typer()
+
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented shape, see README).")]
+
+
+@app.command("init")
+@reports_errors
+def init(ctx: typer.Context,
+         empty: Annotated[bool, typer.Option("--empty", help="Do not load the bundled catalogue.")] = False) -> None:
+    """Create or upgrade the catalogue and load the bundled reference entries."""
+    from gravicat import __version__, store
+    from gravicat.db import safe_url
+
+    app_ctx = app_context(ctx)
+    docs = [] if empty else list(store.iter_bundled_documents())
+    counts = {"new": 0, "revised": 0, "unchanged": 0}
+    with app_ctx.transaction(create=True) as session:
+        for doc in docs:
+            counts[store.add_document(session, doc, author="gravicat (bundled)", message="bundled catalogue",
+                                      tool_version=__version__).action] += 1
+        total = store.count_entries(session)
+    typer.echo(f"catalogue ready at {safe_url(app_ctx.settings.database)}: {total} entries"
+               + ("" if empty else f" (bundled: {counts['new']} new, {counts['revised']} updated, "
+                                   f"{counts['unchanged']} unchanged)"))
+
+
+def validate_files(paths: list[Path], pm) -> list:
+    """Read, validate and build every chart of every file; raises on the first bad one."""
+    from gravicat.metricfile import build_chart, load_file
+
+    docs = []
+    for path in paths:
+        doc = load_file(path, pm)
+        for chart in doc.chart_names:
+            build_chart(doc, chart)  # refuses a line element that is not a quadratic form
+        docs.append(doc)
+    return docs
+
+
+@app.command("add")
+@reports_errors
+def add(
+    ctx: typer.Context,
+    files: Annotated[list[Path], typer.Argument(help="Metric files (.toml or .json).", show_default=False)],
+    author: Annotated[str | None, typer.Option("--author", help="Author of the new revisions. "
+                                               "Env: GRAVICAT_AUTHOR; default: login name.")] = None,
+    message: Annotated[str, typer.Option("--message", "-m", help="What changed.")] = "",
+) -> None:
+    """Validate metric files and store them; an unchanged file is a no-op, a changed one a new revision."""
+    from gravicat import __version__, store
+    from gravicat.config import load_settings
+
+    app_ctx = app_context(ctx)
+    who = load_settings(author=author).author
+    docs = validate_files(files, app_ctx.plugins)
+    with app_ctx.transaction() as session:
+        results = [store.add_document(session, doc, author=who, message=message, tool_version=__version__)
+                   for doc in docs]
+    for res in results:
+        typer.echo(f"{res.slug}: {res.action} (revision {res.number}, {res.hash[:12]})")
+
+
+def _list_row(rev) -> dict:
+    return {
+        "id": rev.entry.slug,
+        "title": rev.title,
+        "field_equations": rev.field_equations,
+        "tags": sorted(t.name for t in rev.tags),
+        "charts": [c.name for c in rev.charts],
+        "parameters": [p.name for p in rev.parameters],
+        "revision": rev.hash,
+    }
+
+
+@app.command("list")
+@reports_errors
+def list_entries(
+    ctx: typer.Context,
+    tag: Annotated[str | None, typer.Option("--tag", help="Only entries with this tag.")] = None,
+    equations: Annotated[str | None, typer.Option("--equations", help="Only this field-equation claim.")] = None,
+    param: Annotated[str | None, typer.Option("--param", help="Only entries with this parameter name.")] = None,
+    search: Annotated[str | None, typer.Option("--search", help="Text in id, title or summary.")] = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """List catalogue entries (latest revisions), filtered."""
+    from gravicat import store
+    from gravicat.metricfile import FIELD_EQUATIONS
+
+    if equations is not None and equations not in FIELD_EQUATIONS:
+        raise InputError("--equations", None, f"'{equations}' is not one of {', '.join(FIELD_EQUATIONS)}")
+    with app_context(ctx).transaction() as session:
+        rows = [_list_row(r) for r in store.list_entries(session, tag=tag, equations=equations, param=param,
+                                                          search=search)]
+    if as_json:
+        emit_json(rows)
+        return
+    emit_table([[r["id"], short(r["title"], 40), r["field_equations"], ", ".join(r["charts"]),
+                 short(", ".join(r["tags"]), 40)] for r in rows],
+               ["id", "title", "equations", "charts", "tags"])
+
+
+def _pretty(text: str, coords: list[str]) -> str:
+    """A readable line element: '^' for powers, no spaces around '*'."""
+    return text.replace(" ** ", "^").replace(" * ", "*").replace(" / ", "/")
+
+
+@app.command("show")
+@reports_errors
+def show(
+    ctx: typer.Context,
+    entry: Annotated[str, typer.Argument(help="Entry id.", show_default=False)],
+    chart: Annotated[str | None, typer.Option("--chart", help="Only this chart.")] = None,
+    revision: Annotated[str | None, typer.Option("--revision", help="Revision hash prefix or number.")] = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """Show an entry: metadata, parameters with ranges, charts and the latest check results."""
+    from gravicat import store
+    from gravicat.errors import NotFound
+
+    with app_context(ctx).transaction() as session:
+        rev = store.revision(session, entry, revision)
+        data = rev.document
+        checks = [store.record_to_json(r) for r in store.results_for(session, rev)]
+        prov = rev.provenance
+        info = {
+            "id": rev.entry.slug, "title": data["title"], "summary": data["summary"],
+            "field_equations": data["field-equations"], "tags": data["tags"], "references": data["references"],
+            "notes": data["notes"], "revision": rev.hash, "number": rev.number,
+            "created_at": rev.created_at.isoformat(), "author": prov.author if prov else None,
+            "parameters": [{"name": k, **v} for k, v in data["parameters"].items()],
+            "charts": [], "limits": data["limits"], "flat_when": data["flat-when"], "checks": checks,
+        }
+    if chart is not None and chart not in data["charts"]:
+        raise NotFound(f"{entry}: no chart '{chart}' (charts: {', '.join(data['charts'])})")
+    for name, c in data["charts"].items():
+        if chart is not None and name != chart:
+            continue
+        info["charts"].append({"name": name, "coordinates": c["coordinates"], "domain": c["domain"],
+                               "define": c["define"], "line_element": c.get("line-element"),
+                               "metric": c.get("metric") or _matrix_strings(data, name),
+                               "functions": c["functions"]})
+    if as_json:
+        emit_json(info)
+        return
+    typer.echo(f"{info['id']}: {info['title']}  [{info['field_equations']}]")
+    if info["summary"]:
+        typer.echo(f"  {info['summary']}")
+    typer.echo(f"  revision {info['number']} {info['revision'][:12]} by {info['author']} at {info['created_at']}")
+    if info["tags"]:
+        typer.echo(f"  tags: {', '.join(info['tags'])}")
+    if info["parameters"]:
+        typer.echo("\nparameters:")
+        emit_table([[p["name"], p.get("range", ""), p.get("default", ""), ", ".join(p["assume"]),
+                     short(p["description"], 40)] for p in info["parameters"]],
+                   ["name", "range", "default", "assume", "description"])
+    for c in info["charts"]:
+        typer.echo(f"\nchart {c['name']} ({', '.join(c['coordinates'])})")
+        if c["domain"]:
+            typer.echo(f"  domain: {'; '.join(c['domain'])}")
+        for k, v in c["define"].items():
+            typer.echo(f"  {k} = {_pretty(v, c['coordinates'])}")
+        if c["line_element"]:
+            typer.echo(f"  ds^2 = {_pretty(c['line_element'], c['coordinates'])}")
+        else:
+            for i, row in enumerate(c["metric"]):
+                typer.echo(f"  g[{i}] = [{', '.join(_pretty(x, c['coordinates']) for x in row)}]")
+    if info["references"]:
+        typer.echo("\nreferences:")
+        for r in info["references"]:
+            typer.echo(f"  - {r['citation']}" + (f" doi:{r['doi']}" if r.get("doi") else ""))
+    typer.echo("\nchecks:")
+    if checks:
+        emit_table([[c["chart"], c["check"], c["status"], c["method"], short(c["detail"], 60)] for c in checks],
+                   ["chart", "check", "status", "method", "detail"])
+    else:
+        typer.echo("  not verified yet")
+
+
+def _matrix_strings(data: dict, chart: str) -> list[list[str]]:
+    """The full metric matrix of a line-element chart, as strings (needs sympy)."""
+    from gravicat.metricfile import MetricDocument, build_chart
+
+    spec = build_chart(MetricDocument(data, data["id"]), chart)
+    return [[str(spec.metric[i, j]) for j in range(spec.metric.cols)] for i in range(spec.metric.rows)]
+
+
+@app.command("remove")
+@reports_errors
+def remove(
+    ctx: typer.Context,
+    entry: Annotated[str, typer.Argument(help="Entry id.", show_default=False)],
+    yes: Annotated[bool, typer.Option("--yes", "-y", help="Do not ask.")] = False,
+) -> None:
+    """Remove an entry with all its revisions and results."""
+    import sys
+
+    from gravicat import store
+
+    if not yes:
+        if not sys.stdin.isatty():
+            raise InputError("--yes", None, f"refusing to remove '{entry}' without --yes (no terminal to ask)")
+        if not typer.confirm(f"Remove '{entry}' and all its revisions?"):
+            typer.echo("nothing removed")
+            raise typer.Exit(1)
+    with app_context(ctx).transaction() as session:
+        count = store.remove_entry(session, entry)
+    typer.echo(f"removed {entry} ({count} revision{'s' if count != 1 else ''})")

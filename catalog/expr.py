@@ -1,0 +1,397 @@
+"""Whitelist parser for expressions in metric files.
+
+Metric files are exchanged between groups, so their text is data. An
+expression is parsed with :func:`ast.parse` (which only builds a tree and runs
+nothing), every node is checked against a whitelist, and only then is a sympy
+object built from the tree by :func:`to_sympy`. ``eval``, ``sympify`` and
+``parse_expr`` never see file text.
+
+Allowed: integer and decimal literals (decimals become exact fractions),
+declared names (coordinates, parameters, definitions, differentials in a line
+element, functions), ``pi``, ``+ - * / **``, unary minus, parentheses, calls
+of :data:`MATH_FUNCTIONS`, declared functions called with exactly their
+declared coordinates (or named bare), and ``diff(f, x[, n])`` of a declared
+function. Everything else is refused with the offending token named.
+
+The validation half imports nothing heavy; only :func:`to_sympy` needs sympy.
+"""
+
+from __future__ import annotations
+
+import ast
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+from gravicat.errors import UnsafeExpression
+
+MAX_CHARS = 20_000
+MAX_NODES = 5_000
+MAX_DEPTH = 80
+MAX_EXPONENT = 1_000
+MAX_CONSTANT_BITS = 4_096  # largest exact constant a file may build (about 1 200 digits)
+MAX_LITERAL_DIGITS = 60
+MAX_DIFF_ORDER = 4
+
+MATH_FUNCTIONS: dict[str, int] = {
+    name: 1
+    for name in (
+        "sin cos tan cot sec csc asin acos atan sinh cosh tanh coth asinh acosh atanh "
+        "exp log sqrt Abs LambertW sign"
+    ).split()
+}
+CONSTANTS = frozenset({"pi"})
+RESERVED = frozenset(MATH_FUNCTIONS) | CONSTANTS | {"diff"}
+
+_BINOPS = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
+_UNARY = {ast.USub: "-", ast.UAdd: "+"}
+_COMPARE = {ast.Lt: "<", ast.LtE: "<=", ast.Gt: ">", ast.GtE: ">="}
+
+
+@dataclass(frozen=True)
+class Names:
+    """What an expression may refer to.
+
+    ``symbols``: plain names (coordinates, parameters, definitions, differentials).
+    ``functions``: declared function name -> its argument coordinates, in order.
+    ``coordinates``: the chart's coordinates (the only valid ``diff`` variables).
+    """
+
+    symbols: frozenset[str] = frozenset()
+    functions: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+    coordinates: frozenset[str] = frozenset()
+
+    def with_symbols(self, extra) -> Names:
+        return Names(self.symbols | frozenset(extra), self.functions, self.coordinates)
+
+
+class _Refuse(Exception):
+    def __init__(self, problem: str):
+        self.problem = problem
+
+
+def _token(node: ast.AST) -> str:
+    try:
+        text = ast.unparse(node)
+    except Exception:  # pragma: no cover - unparse handles every node ast.parse makes
+        text = type(node).__name__
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _parse(text: object, mode_hint: str) -> ast.expr:
+    if isinstance(text, bool) or not isinstance(text, (str, int, float)):
+        raise _Refuse(f"expected an expression string, got {type(text).__name__}")
+    if isinstance(text, (int, float)):
+        text = repr(text)
+    if len(text) > MAX_CHARS:
+        raise _Refuse(f"expression is {len(text)} characters long (limit {MAX_CHARS})")
+    if not text.strip():
+        raise _Refuse(f"empty {mode_hint}")
+    if "\x00" in text:
+        raise _Refuse("contains a NUL character")
+    try:
+        tree = ast.parse(text.strip(), mode="eval")
+    except SyntaxError as exc:
+        raise _Refuse(f"not a valid {mode_hint}: {exc.msg} at column {exc.offset}") from None
+    except (RecursionError, MemoryError, ValueError):
+        raise _Refuse(f"{mode_hint} is nested too deeply") from None
+    return tree.body
+
+
+class _Checker:
+    def __init__(self, names: Names):
+        self.names = names
+        self.count = 0
+
+    def expr(self, node: ast.AST, depth: int = 0) -> int | None:
+        """Check ``node``; return an estimate of its size in bits when it is a constant."""
+        self.count += 1
+        if self.count > MAX_NODES:
+            raise _Refuse(f"expression has more than {MAX_NODES} parts")
+        if depth > MAX_DEPTH:
+            raise _Refuse(f"expression is nested more than {MAX_DEPTH} levels deep")
+        if isinstance(node, ast.Constant):
+            return self.constant(node)
+        if isinstance(node, ast.Name):
+            self.name(node)
+            return None
+        if isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
+            return self.expr(node.operand, depth + 1)
+        if isinstance(node, ast.BinOp) and type(node.op) in _BINOPS:
+            left = self.expr(node.left, depth + 1)
+            right = self.expr(node.right, depth + 1)
+            if isinstance(node.op, ast.Pow):
+                exponent = _constant_exponent(node.right)
+                if exponent is not None and abs(exponent) > MAX_EXPONENT:
+                    raise _Refuse(f"exponent {_token(node.right)} is larger than {MAX_EXPONENT} in size")
+                if left is not None and right is not None:
+                    bits = left * max(1, abs(exponent or 1))
+                    if bits > MAX_CONSTANT_BITS:
+                        raise _Refuse(f"constant {_token(node)} is too large")
+                    return bits
+                return None
+            if left is not None and right is not None:
+                bits = left + right if isinstance(node.op, (ast.Mult, ast.Div)) else max(left, right) + 1
+                if bits > MAX_CONSTANT_BITS:
+                    raise _Refuse(f"constant {_token(node)} is too large")
+                return bits
+            return None
+        if isinstance(node, ast.Call):
+            self.call(node, depth)
+            return None
+        raise _Refuse(f"'{_token(node)}' is not allowed ({_describe(node)})")
+
+    def constant(self, node: ast.Constant) -> int:
+        value = node.value
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise _Refuse(f"'{_token(node)}' is not allowed (only numbers, names and arithmetic)")
+        if isinstance(value, float):
+            if value != value or value in (float("inf"), float("-inf")):
+                raise _Refuse(f"number '{_token(node)}' is not finite")
+            digits = len(repr(value))
+        else:
+            digits = len(str(value))
+        if digits > MAX_LITERAL_DIGITS:
+            raise _Refuse(f"number literal with {digits} digits (limit {MAX_LITERAL_DIGITS})")
+        return max(1, int(digits * 3.33) + 1)
+
+    def name(self, node: ast.Name) -> None:
+        ident = node.id
+        if ident.startswith("_"):
+            raise _Refuse(f"name '{ident}' is not allowed (names may not start with '_')")
+        if ident in CONSTANTS or ident in self.names.symbols or ident in self.names.functions:
+            return
+        if ident in MATH_FUNCTIONS or ident == "diff":
+            raise _Refuse(f"function '{ident}' used without arguments")
+        raise _Refuse(f"unknown name '{ident}' (declare it as a parameter, coordinate, definition or function)")
+
+    def call(self, node: ast.Call, depth: int) -> None:
+        if not isinstance(node.func, ast.Name):
+            raise _Refuse(f"'{_token(node.func)}' is not a function name")
+        fname = node.func.id
+        if node.keywords or any(isinstance(a, ast.Starred) for a in node.args):
+            raise _Refuse(f"call '{_token(node)}' may only have plain positional arguments")
+        if fname in MATH_FUNCTIONS:
+            if len(node.args) != MATH_FUNCTIONS[fname]:
+                raise _Refuse(f"{fname}() takes {MATH_FUNCTIONS[fname]} argument, got {len(node.args)}")
+            self.expr(node.args[0], depth + 1)
+            return
+        if fname in self.names.functions:
+            wanted = self.names.functions[fname]
+            got = tuple(a.id if isinstance(a, ast.Name) else None for a in node.args)
+            if got != wanted:
+                raise _Refuse(f"function '{fname}' is declared as {fname}({', '.join(wanted)}); "
+                              f"call it exactly so, or write '{fname}' alone")
+            self.count += len(node.args)
+            return
+        if fname == "diff":
+            self.diff(node)
+            return
+        if fname in self.names.symbols:
+            raise _Refuse(f"'{fname}' is not a function (it is declared as a symbol)")
+        raise _Refuse(f"unknown function '{fname}'")
+
+    def diff(self, node: ast.Call) -> None:
+        args = node.args
+        if not 2 <= len(args) <= 3:
+            raise _Refuse("diff() takes a function, a coordinate and an optional order")
+        target = args[0]
+        if isinstance(target, ast.Call) and isinstance(target.func, ast.Name) and target.func.id == "diff":
+            self.diff(target)
+            inner = _diff_base(target)
+        else:
+            if isinstance(target, ast.Call):
+                self.call(target, 0)
+                inner = target.func.id if isinstance(target.func, ast.Name) else None
+            elif isinstance(target, ast.Name):
+                inner = target.id
+            else:
+                inner = None
+            if inner not in self.names.functions:
+                raise _Refuse(f"diff() applies to a declared function, not '{_token(target)}'")
+        var = args[1]
+        if not isinstance(var, ast.Name) or var.id not in self.names.functions[inner]:
+            raise _Refuse(f"diff(): '{_token(var)}' is not an argument of function '{inner}'")
+        if len(args) == 3:
+            order = args[2]
+            if not (isinstance(order, ast.Constant) and type(order.value) is int
+                    and 1 <= order.value <= MAX_DIFF_ORDER):
+                raise _Refuse(f"diff(): order must be an integer from 1 to {MAX_DIFF_ORDER}")
+        self.count += len(args)
+
+
+def _diff_base(node: ast.Call) -> str:
+    target = node.args[0]
+    while isinstance(target, ast.Call) and isinstance(target.func, ast.Name) and target.func.id == "diff":
+        target = target.args[0]
+    if isinstance(target, ast.Call):
+        return target.func.id  # type: ignore[union-attr]
+    return target.id  # type: ignore[union-attr]
+
+
+def _constant_exponent(node: ast.AST) -> float | None:
+    sign = 1
+    while isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
+        sign = -sign if isinstance(node.op, ast.USub) else sign
+        node = node.operand
+    if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
+        return sign * node.value
+    return None
+
+
+def _describe(node: ast.AST) -> str:
+    kinds = {
+        ast.Attribute: "attribute access",
+        ast.Lambda: "lambda",
+        ast.ListComp: "comprehension",
+        ast.GeneratorExp: "comprehension",
+        ast.SetComp: "comprehension",
+        ast.DictComp: "comprehension",
+        ast.Subscript: "subscript",
+        ast.Compare: "comparison",
+        ast.BoolOp: "boolean operator",
+        ast.IfExp: "conditional expression",
+        ast.NamedExpr: "assignment",
+        ast.JoinedStr: "string",
+        ast.List: "list",
+        ast.Tuple: "tuple",
+        ast.Dict: "dict",
+        ast.Set: "set",
+        ast.Await: "await",
+        ast.Yield: "yield",
+        ast.Starred: "star expression",
+    }
+    for cls, word in kinds.items():
+        if isinstance(node, cls):
+            return word
+    if isinstance(node, ast.BinOp):
+        return f"operator {type(node.op).__name__}"
+    if isinstance(node, ast.UnaryOp):
+        return f"operator {type(node.op).__name__}"
+    return type(node).__name__
+
+
+def check_expression(text: object, names: Names, *, source: str, field: str) -> ast.expr:
+    """Parse and check one expression; return its tree. Raises UnsafeExpression."""
+    try:
+        tree = _parse(text, "expression")
+        _Checker(names).expr(tree)
+    except _Refuse as exc:
+        raise UnsafeExpression(source, field, exc.problem) from None
+    return tree
+
+
+@dataclass(frozen=True)
+class Relation:
+    """One inequality ``left OP right`` (a chain ``a < b < c`` gives two)."""
+
+    left: ast.expr
+    op: str
+    right: ast.expr
+
+    def text(self) -> str:
+        return f"{ast.unparse(self.left)} {self.op} {ast.unparse(self.right)}"
+
+
+def check_relation(text: object, names: Names, *, source: str, field: str) -> list[Relation]:
+    """Parse an inequality, chained allowed (``0 <= a <= M``)."""
+    try:
+        tree = _parse(text, "inequality")
+        if not isinstance(tree, ast.Compare):
+            raise _Refuse(f"'{_token(tree)}' is not an inequality (use <, <=, >, >=)")
+        checker = _Checker(names)
+        operands = [tree.left, *tree.comparators]
+        for operand in operands:
+            checker.expr(operand, 1)
+        relations = []
+        for op, left, right in zip(tree.ops, operands, operands[1:], strict=False):
+            if type(op) not in _COMPARE:
+                raise _Refuse(f"comparison '{type(op).__name__}' is not allowed (use <, <=, >, >=)")
+            relations.append(Relation(left, _COMPARE[type(op)], right))
+    except _Refuse as exc:
+        raise UnsafeExpression(source, field, exc.problem) from None
+    return relations
+
+
+def canonical(tree: ast.AST) -> str:
+    """The canonical text of a checked tree (whitespace and redundant parentheses normalised)."""
+    return ast.unparse(tree)
+
+
+def names_in(tree: ast.AST) -> set[str]:
+    """Every identifier a checked tree refers to (functions included)."""
+    out = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Name):
+            out.add(node.id)
+    return out
+
+
+# --------------------------------------------------------------------------- sympy side
+
+
+def to_sympy(tree: ast.AST, env: Mapping[str, object], functions: Mapping[str, object] | None = None):
+    """Build a sympy expression from a tree accepted by :func:`check_expression`.
+
+    ``env`` maps symbol names to sympy objects; ``functions`` maps a declared
+    function name to its applied sympy form (``a(t)``).
+    """
+    import sympy
+
+    functions = functions or {}
+    math = {
+        "sin": sympy.sin, "cos": sympy.cos, "tan": sympy.tan, "cot": sympy.cot, "sec": sympy.sec,
+        "csc": sympy.csc, "asin": sympy.asin, "acos": sympy.acos, "atan": sympy.atan,
+        "sinh": sympy.sinh, "cosh": sympy.cosh, "tanh": sympy.tanh, "coth": sympy.coth,
+        "asinh": sympy.asinh, "acosh": sympy.acosh, "atanh": sympy.atanh, "exp": sympy.exp,
+        "log": sympy.log, "sqrt": sympy.sqrt, "Abs": sympy.Abs, "LambertW": sympy.LambertW,
+        "sign": sympy.sign,
+    }
+
+    def build(node):
+        if isinstance(node, ast.Constant):
+            if isinstance(node.value, float):
+                return sympy.Rational(repr(node.value))
+            return sympy.Integer(node.value)
+        if isinstance(node, ast.Name):
+            if node.id == "pi":
+                return sympy.pi
+            if node.id in functions:
+                return functions[node.id]
+            return env[node.id]
+        if isinstance(node, ast.UnaryOp):
+            inner = build(node.operand)
+            return -inner if isinstance(node.op, ast.USub) else inner
+        if isinstance(node, ast.BinOp):
+            a, b = build(node.left), build(node.right)
+            op = type(node.op)
+            if op is ast.Add:
+                return a + b
+            if op is ast.Sub:
+                return a - b
+            if op is ast.Mult:
+                return a * b
+            if op is ast.Div:
+                return a / b
+            return sympy.Pow(a, b)
+        if isinstance(node, ast.Call):
+            fname = node.func.id
+            if fname in math:
+                return math[fname](build(node.args[0]))
+            if fname in functions:
+                return functions[fname]
+            if fname == "diff":
+                target = build(node.args[0])
+                var = env[node.args[1].id]
+                order = node.args[2].value if len(node.args) == 3 else 1
+                return sympy.diff(target, var, order)
+        raise UnsafeExpression("<tree>", None, f"unexpected node {type(node).__name__}")  # pragma: no cover
+
+    return build(tree)
+
+
+def relation_to_sympy(rel: Relation, env: Mapping[str, object], functions: Mapping[str, object] | None = None):
+    import sympy
+
+    left = to_sympy(rel.left, env, functions)
+    right = to_sympy(rel.right, env, functions)
+    return {"<": sympy.Lt, "<=": sympy.Le, ">": sympy.Gt, ">=": sympy.Ge}[rel.op](left, right, evaluate=False)

@@ -1,0 +1,177 @@
+"""Catalogue operations on a SQLAlchemy ``Session``. Nothing here is global.
+
+Callers own the transaction (the CLI wraps each command in ``session.begin()``),
+so a failed import of several files writes nothing at all.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from dataclasses import dataclass
+from importlib.resources import files
+from pathlib import Path
+
+from gravicat.errors import InputError, NotFound
+from gravicat.metricfile import MetricDocument, validate
+from gravicat.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session, selectinload
+
+
+@dataclass(frozen=True)
+class Stored:
+    """What :func:`add_document` did: ``action`` is ``new``, ``revised`` or ``unchanged``."""
+
+    slug: str
+    action: str
+    number: int
+    hash: str
+
+
+def bundled_files() -> list[Path]:
+    """The reference catalogue shipped inside the package, sorted by file name."""
+    folder = files("gravicat.data.spacetimes")
+    return sorted(Path(str(p)) for p in folder.iterdir() if p.name.endswith(".toml"))
+
+
+def head(session: Session, slug: str) -> Revision | None:
+    """The latest revision of ``slug``, or None."""
+    return session.scalars(
+        select(Revision).join(Entry, Revision.entry_id == Entry.id)
+        .where(Entry.slug == slug).order_by(Revision.number.desc()).limit(1)
+    ).first()
+
+
+def add_document(session: Session, doc: MetricDocument, *, author: str, message: str = "",
+                 tool_version: str = "") -> Stored:
+    """Store ``doc`` as a new entry, or as a new revision when its content changed."""
+    digest = doc.hash
+    entry = session.scalars(select(Entry).where(Entry.slug == doc.id)).first()
+    parent = None
+    if entry is None:
+        entry = Entry(slug=doc.id)
+        session.add(entry)
+        number, action = 1, "new"
+    else:
+        parent = head(session, doc.id)
+        if parent is not None and parent.hash == digest:
+            return Stored(doc.id, "unchanged", parent.number, digest)
+        number, action = (parent.number + 1 if parent else 1), "revised"
+    data = doc.data
+    rev = Revision(entry=entry, parent_id=parent.id if parent else None, number=number, hash=digest,
+                   title=data["title"], summary=data["summary"], field_equations=data["field-equations"],
+                   document=data, message=message)
+    rev.provenance = Provenance(author=author, source=doc.source, tool_version=tool_version)
+    rev.charts = [Chart(position=i, name=name, coordinates=c["coordinates"], domain=c["domain"],
+                        line_element=c.get("line-element"))
+                  for i, (name, c) in enumerate(data["charts"].items())]
+    rev.parameters = [Parameter(position=i, name=name, description=p["description"], assume=p["assume"],
+                                range=p.get("range"), default=p.get("default"))
+                      for i, (name, p) in enumerate(data["parameters"].items())]
+    rev.tags = [Tag(name=t) for t in data["tags"]]
+    rev.references = [Reference(position=i, citation=r["citation"], doi=r.get("doi"))
+                      for i, r in enumerate(data["references"])]
+    session.add(rev)
+    session.flush()
+    return Stored(doc.id, action, number, digest)
+
+
+def _latest_ids():
+    return (select(func.max(Revision.id).label("id")).group_by(Revision.entry_id)).scalar_subquery()
+
+
+def list_entries(session: Session, *, tag: str | None = None, equations: str | None = None,
+                 param: str | None = None, search: str | None = None) -> list[Revision]:
+    """Latest revisions of all entries matching every given filter, sorted by id (slug)."""
+    q = (select(Revision).join(Entry, Revision.entry_id == Entry.id)
+         .where(Revision.id.in_(_latest_ids()))
+         .options(selectinload(Revision.tags), selectinload(Revision.charts),
+                  selectinload(Revision.parameters), selectinload(Revision.entry)))
+    if tag:
+        q = q.where(Revision.id.in_(select(Tag.revision_id).where(Tag.name == tag)))
+    if equations:
+        q = q.where(Revision.field_equations == equations)
+    if param:
+        q = q.where(Revision.id.in_(select(Parameter.revision_id).where(Parameter.name == param)))
+    if search:
+        like = f"%{search.lower()}%"
+        q = q.where(or_(func.lower(Revision.title).like(like), func.lower(Revision.summary).like(like),
+                        func.lower(Entry.slug).like(like)))
+    return list(session.scalars(q.order_by(Entry.slug)))
+
+
+def revision(session: Session, slug: str, rev: str | None = None) -> Revision:
+    """The revision of ``slug`` whose hash starts with ``rev`` (or whose number is ``rev``); latest if None."""
+    entry = session.scalars(select(Entry).where(Entry.slug == slug)).first()
+    if entry is None:
+        raise NotFound(f"no entry '{slug}' in the catalogue (see 'gravicat list')")
+    if rev is None:
+        found = head(session, slug)
+        if found is None:  # pragma: no cover - an entry always has a revision
+            raise NotFound(f"entry '{slug}' has no revision")
+        return found
+    q = select(Revision).where(Revision.entry_id == entry.id)
+    if rev.isdigit() and len(rev) < 6:
+        matches = list(session.scalars(q.where(Revision.number == int(rev))))
+    else:
+        matches = list(session.scalars(q.where(Revision.hash.like(f"{rev.lower()}%"))))
+    if not matches:
+        raise NotFound(f"entry '{slug}' has no revision '{rev}' (see 'gravicat show {slug}')")
+    if len({m.hash for m in matches}) > 1:
+        raise InputError("--revision", None, f"'{rev}' matches several revisions of '{slug}'; give more characters")
+    return matches[-1]
+
+
+def document_of(rev: Revision) -> MetricDocument:
+    """The validated document a revision holds."""
+    source = rev.provenance.source if rev.provenance else f"{rev.entry.slug}@{rev.hash[:12]}"
+    return MetricDocument(rev.document, source)
+
+
+def remove_entry(session: Session, slug: str) -> int:
+    """Delete an entry with all its revisions and results; returns the number of revisions removed."""
+    entry = session.scalars(select(Entry).where(Entry.slug == slug)).first()
+    if entry is None:
+        raise NotFound(f"no entry '{slug}' in the catalogue (see 'gravicat list')")
+    count = len(entry.revisions)
+    session.delete(entry)
+    session.flush()
+    return count
+
+
+def results_for(session: Session, rev: Revision) -> list[CheckRecord]:
+    """Stored results of a revision: for each (chart, check) the newest row."""
+    rows = session.scalars(select(CheckRecord).where(CheckRecord.revision_id == rev.id)
+                           .order_by(CheckRecord.id)).all()
+    latest: dict[tuple[str, str], CheckRecord] = {}
+    for row in rows:
+        latest[(row.chart, row.check)] = row
+    return list(latest.values())
+
+
+def record_to_json(row: CheckRecord) -> dict:
+    return {
+        "chart": row.chart,
+        "check": row.check,
+        "status": row.status.value,
+        "method": row.method.value,
+        "detail": row.detail,
+        "counterexample": row.counterexample,
+        "seconds": row.seconds,
+        "verifier": row.verifier,
+        "version": row.verifier_version,
+        "created_at": row.created_at.isoformat(),
+    }
+
+
+def iter_bundled_documents() -> Iterator[MetricDocument]:
+    from gravicat.metricfile import decode_toml
+
+    for path in bundled_files():
+        raw = decode_toml(path)
+        yield validate(raw.data, f"bundled:{path.name}")
+
+
+def count_entries(session: Session) -> int:
+    return session.scalar(select(func.count(Entry.id))) or 0
+

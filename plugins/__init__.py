@@ -1,0 +1,1 @@
+"""gravicat's built-in plugins, registered through the ``gravicat`` entry-point group."""
