@@ -169,15 +169,10 @@ def load_file(path: str | Path, pm=None) -> MetricDocument:
     built-in decoders are used directly.
     """
     path = Path(path)
-    if pm is not None:
-        raw = pm.hook.read_metric_source(path=path)
-    else:
-        if not path.exists():
-            raise InputError(str(path), None, "no such file")
-        raw = decode_builtin(path)
+    if not path.exists():
+        raise InputError(str(path), None, "no such file")
+    raw = pm.hook.read_metric_source(path=path) if pm is not None else decode_builtin(path)
     if raw is None:
-        if not path.exists():
-            raise InputError(str(path), None, "no such file")
         raise InputError(str(path), None, "unknown file type (expected .toml or .json)")
     return validate(raw.data, raw.source)
 
@@ -533,6 +528,7 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
                 resolve: Callable[[str], Any] | None = None):
     """The sympy form of one chart (default: the first). Raises InputError for a bad line element."""
     import sympy
+
     from gravicat.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
     from gravicat.expr import relation_to_sympy, to_sympy
 
@@ -646,24 +642,31 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
 
 
 def _quadratic_form(form, dsyms, source: str, field: str):
-    """The symmetric matrix of a quadratic form in the differentials ``dsyms``."""
+    """The symmetric matrix of a quadratic form in the differentials ``dsyms``.
+
+    g_ij = (1/2) d^2 form / d(dx^i) d(dx^j): differentiation, never expansion, so a
+    large line element (Kerr-Schild) converts in milliseconds. The form must be
+    homogeneous of degree two: the Hessian may not contain a differential, and the
+    value and gradient at zero differentials must vanish.
+    """
     import sympy
 
-    try:
-        poly = sympy.Poly(form, *dsyms)
-    except sympy.PolynomialError as exc:
-        raise InputError(source, field, f"not a polynomial in the differentials ({exc})") from None
     n = len(dsyms)
+    zero = dict.fromkeys(dsyms, 0)
+    dset = set(dsyms)
+    grad = [sympy.diff(form, d) for d in dsyms]
     g = sympy.zeros(n, n)
-    for monom, coeff in poly.terms():
-        if sum(monom) != 2:
-            term = sympy.Mul(*(d**k for d, k in zip(dsyms, monom, strict=True)))
-            raise InputError(source, field, f"term in {term} is not quadratic in the differentials")
-        idx = [i for i, k in enumerate(monom) for _ in range(k)]
-        i, j = idx
-        if i == j:
-            g[i, i] += coeff
-        else:
-            g[i, j] += coeff / 2
-            g[j, i] += coeff / 2
+    for i in range(n):
+        for j in range(i, n):
+            h = sympy.diff(grad[i], dsyms[j])
+            if h.free_symbols & dset:
+                bad = sorted(str(d) for d in h.free_symbols & dset)
+                raise InputError(source, field, f"not quadratic in the differentials (the coefficient of "
+                                                f"{dsyms[i]}*{dsyms[j]} still depends on {', '.join(bad)})")
+            g[i, j] = g[j, i] = h / 2
+    lower = [form.subs(zero)] + [gi.subs(zero) for gi in grad]
+    for term in lower:
+        if term != 0 and sympy.cancel(term) != 0:
+            raise InputError(source, field, "not a quadratic form: it has terms without two differentials "
+                                            f"({term})")
     return g

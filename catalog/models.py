@@ -13,7 +13,6 @@ from __future__ import annotations
 import datetime as dt
 from typing import Annotated, Any
 
-from gravicat.checks import Method, Status
 from sqlalchemy import (
     JSON,
     DateTime,
@@ -27,6 +26,8 @@ from sqlalchemy import (
     UniqueConstraint,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+from gravicat.checks import Method, Status
 
 NAMING = {
     "ix": "ix_%(table_name)s_%(column_0_N_name)s",

@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 
 import pluggy
+
 from gravicat import hookspecs
 from gravicat.errors import PluginError
 

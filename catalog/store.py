@@ -11,11 +11,12 @@ from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
 
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session, selectinload
+
 from gravicat.errors import InputError, NotFound
 from gravicat.metricfile import MetricDocument, validate
 from gravicat.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
-from sqlalchemy import func, or_, select
-from sqlalchemy.orm import Session, selectinload
 
 
 @dataclass(frozen=True)

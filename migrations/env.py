@@ -6,8 +6,9 @@ use the URL in alembic.ini or ``-x url=...``.
 """
 
 from alembic import context
-from gravicat.models import Base
 from sqlalchemy import create_engine
+
+from gravicat.models import Base
 
 config = context.config
 target_metadata = Base.metadata

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Annotated
 
 import typer
+
 from gravicat.cli import entries, export, plugins
 from gravicat.cli._base import AppContext, reports_errors
 

@@ -10,13 +10,15 @@ from functools import cached_property
 from typing import TYPE_CHECKING
 
 import typer
+
 from gravicat.errors import CatalogError, DatabaseError
 
 if TYPE_CHECKING:
     import pluggy
-    from gravicat.config import Settings
     from sqlalchemy.engine import Engine
     from sqlalchemy.orm import Session
+
+    from gravicat.config import Settings
 
 
 @dataclass

@@ -6,6 +6,7 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+
 from gravicat.cli._base import app_context, reports_errors
 from gravicat.cli._output import emit_json, emit_table, short
 from gravicat.errors import InputError

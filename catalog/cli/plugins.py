@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Annotated
 
 import typer
+
 from gravicat.cli._base import app_context, reports_errors
 from gravicat.cli._output import emit_json, emit_table
 
