@@ -150,6 +150,42 @@ def results_for(session: Session, rev: Revision) -> list[CheckRecord]:
     return list(latest.values())
 
 
+def save_results(session: Session, rev: Revision, chart: str, results) -> None:
+    """Store results of one chart of a revision (rows are only ever added)."""
+    for r in results:
+        session.add(CheckRecord(revision_id=rev.id, chart=chart, check=r.check, verifier=r.verifier,
+                                verifier_version=r.version, status=r.status, method=r.method, detail=r.detail,
+                                counterexample=_jsonable(r.counterexample), seconds=float(r.seconds)))
+    session.flush()
+
+
+def _jsonable(value):
+    import json
+
+    return None if value is None else json.loads(json.dumps(value, default=str))
+
+
+def stored_versions(session: Session, rev: Revision) -> set[tuple[str, str, str]]:
+    """(chart, verifier, version) triples that already have results for ``rev``."""
+    rows = session.execute(select(CheckRecord.chart, CheckRecord.verifier, CheckRecord.verifier_version)
+                           .where(CheckRecord.revision_id == rev.id).distinct())
+    return {tuple(r) for r in rows}
+
+
+def status_by_revision(session: Session, revision_ids: list[int]) -> dict[int, str]:
+    """Overall status of each revision from its newest result per (chart, check); absent = unverified."""
+    from gravicat.checks import worst
+
+    latest: dict[int, dict[tuple[str, str], str]] = {}
+    if revision_ids:
+        rows = session.execute(select(CheckRecord.revision_id, CheckRecord.chart, CheckRecord.check,
+                                      CheckRecord.status).where(CheckRecord.revision_id.in_(revision_ids))
+                               .order_by(CheckRecord.id))
+        for rid, chart, check, status in rows:
+            latest.setdefault(rid, {})[(chart, check)] = status
+    return {rid: worst(v.values()).value for rid, v in latest.items()}
+
+
 def record_to_json(row: CheckRecord) -> dict:
     return {
         "chart": row.chart,

@@ -73,7 +73,7 @@ def add(
         typer.echo(f"{res.slug}: {res.action} (revision {res.number}, {res.hash[:12]})")
 
 
-def _list_row(rev) -> dict:
+def _list_row(rev, status: str) -> dict:
     return {
         "id": rev.entry.slug,
         "title": rev.title,
@@ -82,6 +82,7 @@ def _list_row(rev) -> dict:
         "charts": [c.name for c in rev.charts],
         "parameters": [p.name for p in rev.parameters],
         "revision": rev.hash,
+        "status": status,
     }
 
 
@@ -93,6 +94,7 @@ def list_entries(
     equations: Annotated[str | None, typer.Option("--equations", help="Only this field-equation claim.")] = None,
     param: Annotated[str | None, typer.Option("--param", help="Only entries with this parameter name.")] = None,
     search: Annotated[str | None, typer.Option("--search", help="Text in id, title or summary.")] = None,
+    status: Annotated[str | None, typer.Option("--status", help="pass, fail, inconclusive or unverified.")] = None,
     as_json: JsonOpt = False,
 ) -> None:
     """List catalogue entries (latest revisions), filtered."""
@@ -101,15 +103,21 @@ def list_entries(
 
     if equations is not None and equations not in FIELD_EQUATIONS:
         raise InputError("--equations", None, f"'{equations}' is not one of {', '.join(FIELD_EQUATIONS)}")
+    statuses = ("pass", "fail", "inconclusive", "unverified", "error", "skipped")
+    if status is not None and status not in statuses:
+        raise InputError("--status", None, f"'{status}' is not one of {', '.join(statuses)}")
     with app_context(ctx).transaction() as session:
-        rows = [_list_row(r) for r in store.list_entries(session, tag=tag, equations=equations, param=param,
-                                                          search=search)]
+        revs = store.list_entries(session, tag=tag, equations=equations, param=param, search=search)
+        found = store.status_by_revision(session, [r.id for r in revs])
+        rows = [_list_row(r, found.get(r.id, "unverified")) for r in revs]
+    if status is not None:
+        rows = [r for r in rows if r["status"] == status]
     if as_json:
         emit_json(rows)
         return
-    emit_table([[r["id"], short(r["title"], 40), r["field_equations"], ", ".join(r["charts"]),
-                 short(", ".join(r["tags"]), 40)] for r in rows],
-               ["id", "title", "equations", "charts", "tags"])
+    emit_table([[r["id"], short(r["title"], 36), r["field_equations"], r["status"], ", ".join(r["charts"]),
+                 short(", ".join(r["tags"]), 36)] for r in rows],
+               ["id", "title", "equations", "status", "charts", "tags"])
 
 
 def _pretty(text: str, coords: list[str]) -> str:

@@ -1,0 +1,205 @@
+"""Verification commands: check (a file, nothing stored), verify (catalogue entries), invariants."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._output import emit_json, emit_table, short
+from gravicat.errors import CheckFailed, InputError
+
+app = typer.Typer()
+
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented shape, see README).")]
+BudgetOpt = Annotated[float, typer.Option("--budget", min=0.1, help="Seconds per symbolic proof before a check "
+                                                                    "is reported inconclusive.")]
+
+
+def _print_reports(metric: str, reports, as_json: bool) -> str:
+    from gravicat.checks import worst
+
+    overall = worst(r.status for r in reports).value
+    if as_json:
+        emit_json({"metric": metric, "status": overall, "charts": [r.to_json() for r in reports]})
+        return overall
+    rows = []
+    for rep in reports:
+        for res in rep.results:
+            rows.append([rep.chart, res.check, res.status.value, res.method.value, f"{res.seconds:.3f}",
+                         short(res.detail.replace("\n", " "), 70)])
+    emit_table(rows, ["chart", "check", "status", "method", "seconds", "detail"])
+    for rep in reports:
+        for res in rep.results:
+            if res.counterexample:
+                typer.echo(f"counterexample ({rep.chart}, {res.check}): {res.counterexample}")
+    typer.echo(f"{metric}: {overall}")
+    return overall
+
+
+def load_subject(app_ctx: AppContext, arg: str, revision: str | None = None):
+    """A metric file path, or the id of a catalogue entry (latest revision unless ``revision``)."""
+    from gravicat.metricfile import load_file
+
+    path = Path(arg)
+    if path.exists() or path.suffix.lower() in (".toml", ".json"):
+        return load_file(path, app_ctx.plugins)
+    from gravicat import store
+
+    with app_ctx.transaction() as session:
+        return store.document_of(store.revision(session, arg, revision))
+
+
+@app.command("check")
+@reports_errors
+def check(
+    ctx: typer.Context,
+    file: Annotated[Path, typer.Argument(help="Metric file (.toml or .json).", show_default=False)],
+    chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
+    only: Annotated[list[str] | None, typer.Option("--only", help="Only this check (repeatable).")] = None,
+    budget: BudgetOpt = 20.0,
+    as_json: JsonOpt = False,
+) -> None:
+    """Verify a metric file without storing it; exit 1 if any check fails."""
+    from gravicat.metricfile import load_file
+    from gravicat.registry import verifiers
+    from gravicat.verify import bundled_documents, check_document, make_resolver, select_verifiers
+
+    app_ctx = app_context(ctx)
+    doc = load_file(file, app_ctx.plugins)
+    for name in chart or ():
+        if name not in doc.chart_names:
+            raise InputError(str(file), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
+    chosen = select_verifiers(verifiers(app_ctx.plugins), only)
+    resolve = make_resolver({**bundled_documents(), doc.id: doc})
+    reports = check_document(doc, chosen, charts=chart, resolve=resolve, budget=budget)
+    overall = _print_reports(doc.id, reports, as_json)
+    if overall in ("fail", "error"):
+        raise CheckFailed(f"{file}: {overall} (see the table above)") if not as_json else typer.Exit(1)
+
+
+@app.command("verify")
+@reports_errors
+def verify(
+    ctx: typer.Context,
+    entries: Annotated[list[str] | None, typer.Argument(help="Entry ids.", show_default=False)] = None,
+    all_entries: Annotated[bool, typer.Option("--all", help="Every entry of the catalogue.")] = False,
+    force: Annotated[bool, typer.Option("--force", help="Recompute even when results are stored.")] = False,
+    jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
+    budget: BudgetOpt = 20.0,
+    as_json: JsonOpt = False,
+) -> None:
+    """Verify catalogue entries and store the results against their revision.
+
+    Results already stored for the same revision hash and verifier version are reused unless --force.
+    """
+    from gravicat import store
+    from gravicat.registry import verifiers
+    from gravicat.verify import result_from_json, select_verifiers
+
+    app_ctx = app_context(ctx)
+    if not entries and not all_entries:
+        raise InputError("ID", None, "name entries to verify, or give --all")
+    chosen = select_verifiers(verifiers(app_ctx.plugins), None)
+    units, keys = [], {}
+    with app_ctx.transaction() as session:
+        revisions = ([store.revision(session, e) for e in entries] if entries
+                     else store.list_entries(session))
+        docs = {r.entry.slug: r.document for r in store.list_entries(session)}
+        for rev in revisions:
+            done = set() if force else store.stored_versions(session, rev)
+            keys[rev.id] = (rev.entry.slug, rev.hash)
+            for chart in rev.document["charts"]:
+                todo = [v.name for v in chosen if (chart, v.name, v.version) not in done]
+                if todo:
+                    units.append({"key": rev.id, "chart": chart, "document": rev.document,
+                                  "source": f"catalogue:{rev.entry.slug}@{rev.hash[:12]}", "verifiers": todo,
+                                  "docs": docs, "blocked": list(app_ctx.settings.disable_plugins),
+                                  "budget": budget})
+    outputs = _run_units(units, jobs)
+    with app_ctx.transaction() as session:
+        for out in outputs:
+            rev = session.get(store.Revision, out["key"])
+            store.save_results(session, rev, out["chart"], [result_from_json(r) for r in out["results"]])
+        summary = []
+        for rid, (slug, digest) in keys.items():
+            rev = session.get(store.Revision, rid)
+            rows = store.results_for(session, rev)
+            current = {(v.name, v.version) for v in chosen}
+            rows = [r for r in rows if (r.verifier, r.verifier_version) in current]
+            summary.append({"metric": slug, "revision": digest,
+                            "status": store.status_by_revision(session, [rid]).get(rid, "unverified"),
+                            "computed": sum(1 for u in units if u["key"] == rid),
+                            "checks": [store.record_to_json(r) for r in rows]})
+    failed = [s["metric"] for s in summary if s["status"] in ("fail", "error")]
+    if as_json:
+        emit_json({"entries": summary, "status": "fail" if failed else "pass"})
+    else:
+        emit_table([[s["metric"], s["revision"][:12], s["status"],
+                     "reused" if not s["computed"] else f"{s['computed']} chart(s) computed"] for s in summary],
+                   ["entry", "revision", "status", "results"])
+    if failed:
+        if as_json:
+            raise typer.Exit(1)
+        raise CheckFailed(f"{len(failed)} entr{'y' if len(failed) == 1 else 'ies'} failed: {', '.join(failed)}")
+
+
+def _run_units(units: list[dict], jobs: int) -> list[dict]:
+    from gravicat.verify import run_unit
+
+    if not units:
+        return []
+    show = sys.stderr.isatty()
+    outputs = []
+    if jobs == 1:
+        iterator = map(run_unit, units)
+        if show:
+            with typer.progressbar(iterator, length=len(units), label="verifying", file=sys.stderr) as bar:
+                return list(bar)
+        return list(iterator)
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+
+    # heaviest first, so that the long charts do not end up last on one core
+    order = sorted(units, key=lambda u: -len(str(u["document"]["charts"][u["chart"]])))
+    with ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context("fork")) as pool:
+        futures = [pool.submit(run_unit, u) for u in order]
+        if show:
+            with typer.progressbar(length=len(futures), label="verifying", file=sys.stderr) as bar:
+                for fut in as_completed(futures):
+                    outputs.append(fut.result())
+                    bar.update(1)
+        else:
+            outputs = [f.result() for f in as_completed(futures)]
+    return outputs
+
+
+@app.command("invariants")
+@reports_errors
+def invariants(
+    ctx: typer.Context,
+    subject: Annotated[str, typer.Argument(help="Metric file or entry id.", show_default=False)],
+    chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """The Ricci scalar and the Kretschmann scalar of each chart, in closed form."""
+    from gravicat.geometry import Geometry
+    from gravicat.metricfile import build_chart
+
+    app_ctx = app_context(ctx)
+    doc = load_subject(app_ctx, subject)
+    names = chart or doc.chart_names
+    out = []
+    for name in names:
+        geo = Geometry(build_chart(doc, name))
+        out.append({"chart": name, "ricci_scalar": str(geo.to_sympy(geo.ricci_scalar)),
+                    "kretschmann": str(geo.to_sympy(geo.kretschmann)), "path": geo.path})
+    if as_json:
+        emit_json({"metric": doc.id, "charts": [{k: v for k, v in c.items() if k != "path"} for c in out]})
+        return
+    for c in out:
+        typer.echo(f"{doc.id} / {c['chart']}:\n  Ricci scalar = {c['ricci_scalar']}\n"
+                   f"  Kretschmann  = {c['kretschmann']}")
