@@ -18,10 +18,18 @@ a bug and keeps its traceback.
 from __future__ import annotations
 
 
+def one_line(text: str) -> str:
+    """``text`` with control characters escaped, so a message from file content stays one line."""
+    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+
+
 class CatalogError(Exception):
-    """Base of every user-facing error. ``str(exc)`` is the message."""
+    """Base of every user-facing error. ``str(exc)`` is the message, always one line."""
 
     exit_code = 2
+
+    def __str__(self) -> str:
+        return one_line(super().__str__())
 
 
 class InputError(CatalogError):

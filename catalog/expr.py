@@ -19,8 +19,12 @@ The validation half imports nothing heavy; only :func:`to_sympy` needs sympy.
 from __future__ import annotations
 
 import ast
+import re
+import sys
 from collections.abc import Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass, field
+from fractions import Fraction
 
 from gravicat.errors import UnsafeExpression
 
@@ -59,9 +63,12 @@ class Names:
     symbols: frozenset[str] = frozenset()
     functions: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
     coordinates: frozenset[str] = frozenset()
+    constant_bits: Mapping[str, int] = field(default_factory=dict)  # definitions that are plain numbers
 
-    def with_symbols(self, extra) -> Names:
-        return Names(self.symbols | frozenset(extra), self.functions, self.coordinates)
+    def with_symbols(self, extra, constant_bits: Mapping[str, int] | None = None) -> Names:
+        bits = dict(self.constant_bits)
+        bits.update(constant_bits or {})
+        return Names(self.symbols | frozenset(extra), self.functions, self.coordinates, bits)
 
 
 class _Refuse(Exception):
@@ -77,7 +84,7 @@ def _token(node: ast.AST) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def _parse(text: object, mode_hint: str) -> ast.expr:
+def _parse(text: object, mode_hint: str) -> tuple[ast.expr, str]:
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
         raise _Refuse(f"expected an expression string, got {type(text).__name__}")
     if isinstance(text, (int, float)):
@@ -88,13 +95,75 @@ def _parse(text: object, mode_hint: str) -> ast.expr:
         raise _Refuse(f"empty {mode_hint}")
     if "\x00" in text:
         raise _Refuse("contains a NUL character")
+    text = text.strip()
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        tree = ast.parse(text, mode="eval")
     except SyntaxError as exc:
         raise _Refuse(f"not a valid {mode_hint}: {exc.msg} at column {exc.offset}") from None
     except (RecursionError, MemoryError, ValueError):
         raise _Refuse(f"{mode_hint} is nested too deeply") from None
-    return tree.body
+    return _exact_decimals(tree.body, text), text
+
+
+_DECIMAL = re.compile(r"^(\d*)(?:\.(\d*))?(?:[eE]([+-]?\d+))?$")
+MAX_DECIMAL_EXPONENT = 300
+
+
+def _exact_decimals(tree: ast.expr, text: str) -> ast.expr:
+    """Replace every decimal literal by the exact fraction its digits denote (``0.1`` -> ``1 / 10``).
+
+    The float value Python parsed is never used: the digits come from the source text, so
+    ``0.1000000000000000000001`` stays distinct from ``0.1``.
+    """
+
+    class Exact(ast.NodeTransformer):
+        def visit_Constant(self, node):
+            if not isinstance(node.value, float):
+                return node
+            literal = (ast.get_source_segment(text, node) or repr(node.value)).replace("_", "")
+            m = _DECIMAL.match(literal)
+            if not m or len(literal) > MAX_LITERAL_DIGITS:
+                raise _Refuse(f"number literal '{literal[:40]}' is not allowed")
+            whole, frac, exp = m.group(1) or "0", m.group(2) or "", int(m.group(3) or 0)
+            if abs(exp) > MAX_DECIMAL_EXPONENT:
+                raise _Refuse(f"number literal '{literal}' has an exponent beyond {MAX_DECIMAL_EXPONENT}")
+            value = Fraction(int(whole + frac), 10 ** len(frac)) * Fraction(10) ** exp
+            num = ast.Constant(value.numerator)
+            num.from_decimal = True  # a decimal literal is never a diff() order
+            if value.denominator == 1:
+                return ast.copy_location(num, node)
+            return ast.copy_location(ast.BinOp(num, ast.Div(), ast.Constant(value.denominator)), node)
+
+    try:
+        return Exact().visit(tree)
+    except RecursionError:
+        raise _Refuse("expression is nested too deeply") from None
+
+
+@dataclass(frozen=True)
+class _Const:
+    """What the checker knows of a constant subtree: its size in bits and, when small, its value."""
+
+    bits: int
+    value: Fraction | None = None
+
+
+_SMALL_BITS = 128
+
+
+def _chain(node: ast.expr, family: tuple[type, ...]) -> tuple[list[ast.expr], list[ast.operator]]:
+    """Flatten a left-deep chain ``a + b - c + ...`` without recursion: operands and operators."""
+    ops: list[ast.operator] = []
+    rights: list[ast.expr] = []
+    while isinstance(node, ast.BinOp) and isinstance(node.op, family):
+        ops.append(node.op)
+        rights.append(node.right)
+        node = node.left
+    return [node, *reversed(rights)], list(reversed(ops))
+
+
+_ADDITIVE = (ast.Add, ast.Sub)
+_MULTIPLICATIVE = (ast.Mult, ast.Div)
 
 
 class _Checker:
@@ -102,64 +171,100 @@ class _Checker:
         self.names = names
         self.count = 0
 
-    def expr(self, node: ast.AST, depth: int = 0) -> int | None:
-        """Check ``node``; return an estimate of its size in bits when it is a constant."""
-        self.count += 1
+    def tick(self, n: int = 1) -> None:
+        self.count += n
         if self.count > MAX_NODES:
             raise _Refuse(f"expression has more than {MAX_NODES} parts")
+
+    def expr(self, node: ast.AST, depth: int = 0) -> _Const | None:
+        """Check ``node``; describe it when it is a constant (no names, no functions)."""
+        self.tick()
         if depth > MAX_DEPTH:
             raise _Refuse(f"expression is nested more than {MAX_DEPTH} levels deep")
         if isinstance(node, ast.Constant):
             return self.constant(node)
         if isinstance(node, ast.Name):
-            self.name(node)
-            return None
+            return self.name(node)
         if isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
-            return self.expr(node.operand, depth + 1)
+            inner = self.expr(node.operand, depth + 1)
+            if inner is not None and inner.value is not None and isinstance(node.op, ast.USub):
+                return _Const(inner.bits, -inner.value)
+            return inner
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Pow):
+            return self.power(node, depth)
         if isinstance(node, ast.BinOp) and type(node.op) in _BINOPS:
-            left = self.expr(node.left, depth + 1)
-            right = self.expr(node.right, depth + 1)
-            if isinstance(node.op, ast.Pow):
-                exponent = _constant_exponent(node.right)
-                if exponent is not None and abs(exponent) > MAX_EXPONENT:
-                    raise _Refuse(f"exponent {_token(node.right)} is larger than {MAX_EXPONENT} in size")
-                if left is not None and right is not None:
-                    bits = left * max(1, abs(exponent or 1))
-                    if bits > MAX_CONSTANT_BITS:
-                        raise _Refuse(f"constant {_token(node)} is too large")
-                    return bits
+            family = _ADDITIVE if isinstance(node.op, _ADDITIVE) else _MULTIPLICATIVE
+            operands, ops = _chain(node, family)
+            self.tick(len(operands) - 1)
+            parts = [self.expr(o, depth + 1) for o in operands]
+            if any(p is None for p in parts):
                 return None
-            if left is not None and right is not None:
-                bits = left + right if isinstance(node.op, (ast.Mult, ast.Div)) else max(left, right) + 1
-                if bits > MAX_CONSTANT_BITS:
-                    raise _Refuse(f"constant {_token(node)} is too large")
-                return bits
-            return None
+            if family is _ADDITIVE:
+                bits = max(p.bits for p in parts) + len(parts).bit_length()
+            else:
+                bits = sum(p.bits for p in parts)
+            self._limit_bits(bits, node)
+            value = None
+            if bits <= _SMALL_BITS and all(p.value is not None for p in parts):
+                value = parts[0].value
+                for op, p in zip(ops, parts[1:], strict=True):
+                    if isinstance(op, ast.Add):
+                        value += p.value
+                    elif isinstance(op, ast.Sub):
+                        value -= p.value
+                    elif isinstance(op, ast.Mult):
+                        value *= p.value
+                    elif p.value == 0:
+                        raise _Refuse(f"division by zero in '{_token(node)}'")
+                    else:
+                        value /= p.value
+            return _Const(bits, value)
         if isinstance(node, ast.Call):
             self.call(node, depth)
             return None
         raise _Refuse(f"'{_token(node)}' is not allowed ({_describe(node)})")
 
-    def constant(self, node: ast.Constant) -> int:
+    def _limit_bits(self, bits: int, node: ast.AST) -> None:
+        if bits > MAX_CONSTANT_BITS:
+            raise _Refuse(f"constant '{_token(node)}' is too large")
+
+    def power(self, node: ast.BinOp, depth: int) -> _Const | None:
+        base = self.expr(node.left, depth + 1)
+        exponent = self.expr(node.right, depth + 1)
+        if exponent is not None:
+            if exponent.value is None:
+                raise _Refuse(f"exponent '{_token(node.right)}' is larger than {MAX_EXPONENT} in size")
+            if abs(exponent.value) > MAX_EXPONENT:
+                raise _Refuse(f"exponent '{_token(node.right)}' is larger than {MAX_EXPONENT} in size")
+        if base is None or exponent is None:
+            return None
+        e = exponent.value
+        bits = base.bits * max(1, abs(e.numerator))
+        self._limit_bits(bits, node)
+        value = None
+        if bits <= _SMALL_BITS and base.value is not None and e.denominator == 1:
+            if base.value == 0 and e < 0:
+                raise _Refuse(f"division by zero in '{_token(node)}'")
+            value = base.value ** int(e)
+        return _Const(bits, value)
+
+    def constant(self, node: ast.Constant) -> _Const:
         value = node.value
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
+        if isinstance(value, bool) or not isinstance(value, int):
             raise _Refuse(f"'{_token(node)}' is not allowed (only numbers, names and arithmetic)")
-        if isinstance(value, float):
-            if value != value or value in (float("inf"), float("-inf")):
-                raise _Refuse(f"number '{_token(node)}' is not finite")
-            digits = len(repr(value))
-        else:
-            digits = len(str(value))
+        digits = len(str(abs(value))) if value.bit_length() < 20_000 else MAX_LITERAL_DIGITS + 1
         if digits > MAX_LITERAL_DIGITS:
             raise _Refuse(f"number literal with {digits} digits (limit {MAX_LITERAL_DIGITS})")
-        return max(1, int(digits * 3.33) + 1)
+        return _Const(max(1, value.bit_length()), Fraction(value))
 
-    def name(self, node: ast.Name) -> None:
+    def name(self, node: ast.Name) -> _Const | None:
         ident = node.id
         if ident.startswith("_"):
             raise _Refuse(f"name '{ident}' is not allowed (names may not start with '_')")
+        if ident in self.names.constant_bits:
+            return _Const(self.names.constant_bits[ident])
         if ident in CONSTANTS or ident in self.names.symbols or ident in self.names.functions:
-            return
+            return None
         if ident in MATH_FUNCTIONS or ident == "diff":
             raise _Refuse(f"function '{ident}' used without arguments")
         raise _Refuse(f"unknown name '{ident}' (declare it as a parameter, coordinate, definition or function)")
@@ -181,7 +286,7 @@ class _Checker:
             if got != wanted:
                 raise _Refuse(f"function '{fname}' is declared as {fname}({', '.join(wanted)}); "
                               f"call it exactly so, or write '{fname}' alone")
-            self.count += len(node.args)
+            self.tick(len(node.args))
             return
         if fname == "diff":
             self.diff(node)
@@ -190,15 +295,17 @@ class _Checker:
             raise _Refuse(f"'{fname}' is not a function (it is declared as a symbol)")
         raise _Refuse(f"unknown function '{fname}'")
 
-    def diff(self, node: ast.Call) -> None:
+    def diff(self, node: ast.Call) -> int:
+        """Check ``diff(f, x[, n])`` (nested allowed); return the total order."""
         args = node.args
         if not 2 <= len(args) <= 3:
             raise _Refuse("diff() takes a function, a coordinate and an optional order")
         target = args[0]
         if isinstance(target, ast.Call) and isinstance(target.func, ast.Name) and target.func.id == "diff":
-            self.diff(target)
+            inner_order = self.diff(target)
             inner = _diff_base(target)
         else:
+            inner_order = 0
             if isinstance(target, ast.Call):
                 self.call(target, 0)
                 inner = target.func.id if isinstance(target.func, ast.Name) else None
@@ -211,12 +318,18 @@ class _Checker:
         var = args[1]
         if not isinstance(var, ast.Name) or var.id not in self.names.functions[inner]:
             raise _Refuse(f"diff(): '{_token(var)}' is not an argument of function '{inner}'")
+        order = 1
         if len(args) == 3:
-            order = args[2]
-            if not (isinstance(order, ast.Constant) and type(order.value) is int
-                    and 1 <= order.value <= MAX_DIFF_ORDER):
+            arg = args[2]
+            if not (isinstance(arg, ast.Constant) and type(arg.value) is int and 1 <= arg.value <= MAX_DIFF_ORDER
+                    and not getattr(arg, "from_decimal", False)):
                 raise _Refuse(f"diff(): order must be an integer from 1 to {MAX_DIFF_ORDER}")
-        self.count += len(args)
+            order = arg.value
+        total = inner_order + order
+        if total > MAX_DIFF_ORDER:
+            raise _Refuse(f"diff(): total derivative order {total} is above {MAX_DIFF_ORDER}")
+        self.tick(len(args))
+        return total
 
 
 def _diff_base(node: ast.Call) -> str:
@@ -226,16 +339,6 @@ def _diff_base(node: ast.Call) -> str:
     if isinstance(target, ast.Call):
         return target.func.id  # type: ignore[union-attr]
     return target.id  # type: ignore[union-attr]
-
-
-def _constant_exponent(node: ast.AST) -> float | None:
-    sign = 1
-    while isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
-        sign = -sign if isinstance(node.op, ast.USub) else sign
-        node = node.operand
-    if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
-        return sign * node.value
-    return None
 
 
 def _describe(node: ast.AST) -> str:
@@ -272,12 +375,17 @@ def _describe(node: ast.AST) -> str:
 
 def check_expression(text: object, names: Names, *, source: str, field: str) -> ast.expr:
     """Parse and check one expression; return its tree. Raises UnsafeExpression."""
+    return check_expression_size(text, names, source=source, field=field)[0]
+
+
+def check_expression_size(text: object, names: Names, *, source: str, field: str) -> tuple[ast.expr, int | None]:
+    """As :func:`check_expression`, also returning the size in bits when the expression is a plain number."""
     try:
-        tree = _parse(text, "expression")
-        _Checker(names).expr(tree)
+        tree, _ = _parse(text, "expression")
+        info = _Checker(names).expr(tree)
     except _Refuse as exc:
         raise UnsafeExpression(source, field, exc.problem) from None
-    return tree
+    return tree, (info.bits if info is not None else None)
 
 
 @dataclass(frozen=True)
@@ -295,7 +403,7 @@ class Relation:
 def check_relation(text: object, names: Names, *, source: str, field: str) -> list[Relation]:
     """Parse an inequality, chained allowed (``0 <= a <= M``)."""
     try:
-        tree = _parse(text, "inequality")
+        tree, _ = _parse(text, "inequality")
         if not isinstance(tree, ast.Compare):
             raise _Refuse(f"'{_token(tree)}' is not an inequality (use <, <=, >, >=)")
         checker = _Checker(names)
@@ -312,9 +420,21 @@ def check_relation(text: object, names: Names, *, source: str, field: str) -> li
     return relations
 
 
+@contextmanager
+def _deep_recursion():
+    """ast.unparse recurses once per operand of a long sum; checked trees are bounded by MAX_NODES."""
+    old = sys.getrecursionlimit()
+    sys.setrecursionlimit(max(old, 8 * MAX_NODES + 1000))
+    try:
+        yield
+    finally:
+        sys.setrecursionlimit(old)
+
+
 def canonical(tree: ast.AST) -> str:
     """The canonical text of a checked tree (whitespace and redundant parentheses normalised)."""
-    return ast.unparse(tree)
+    with _deep_recursion():
+        return ast.unparse(tree)
 
 
 def names_in(tree: ast.AST) -> set[str]:
@@ -361,18 +481,17 @@ def to_sympy(tree: ast.AST, env: Mapping[str, object], functions: Mapping[str, o
         if isinstance(node, ast.UnaryOp):
             inner = build(node.operand)
             return -inner if isinstance(node.op, ast.USub) else inner
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Pow):
+            return sympy.Pow(build(node.left), build(node.right))
         if isinstance(node, ast.BinOp):
-            a, b = build(node.left), build(node.right)
-            op = type(node.op)
-            if op is ast.Add:
-                return a + b
-            if op is ast.Sub:
-                return a - b
-            if op is ast.Mult:
-                return a * b
-            if op is ast.Div:
-                return a / b
-            return sympy.Pow(a, b)
+            family = _ADDITIVE if isinstance(node.op, _ADDITIVE) else _MULTIPLICATIVE
+            operands, ops = _chain(node, family)
+            values = [build(o) for o in operands]
+            if family is _ADDITIVE:
+                return sympy.Add(values[0], *(v if isinstance(op, ast.Add) else -v
+                                              for op, v in zip(ops, values[1:], strict=True)))
+            return sympy.Mul(values[0], *(v if isinstance(op, ast.Mult) else sympy.Pow(v, -1)
+                                          for op, v in zip(ops, values[1:], strict=True)))
         if isinstance(node, ast.Call):
             fname = node.func.id
             if fname in math:
@@ -386,7 +505,8 @@ def to_sympy(tree: ast.AST, env: Mapping[str, object], functions: Mapping[str, o
                 return sympy.diff(target, var, order)
         raise UnsafeExpression("<tree>", None, f"unexpected node {type(node).__name__}")  # pragma: no cover
 
-    return build(tree)
+    with _deep_recursion():
+        return build(tree)
 
 
 def relation_to_sympy(rel: Relation, env: Mapping[str, object], functions: Mapping[str, object] | None = None):

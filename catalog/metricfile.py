@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import keyword
 import re
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -27,6 +28,7 @@ from gravicat.expr import (
     Names,
     canonical,
     check_expression,
+    check_expression_size,
     check_relation,
 )
 
@@ -36,6 +38,7 @@ MAX_FILE_BYTES = 2_000_000
 
 FIELD_EQUATIONS = ("vacuum", "lambda-vacuum", "electrovacuum", "perfect-fluid", "dust", "null-dust", "none")
 ASSUMPTIONS = ("real", "positive", "nonnegative", "negative", "nonzero", "integer")
+CONFLICTING_ASSUMPTIONS = (("positive", "negative"), ("nonnegative", "negative"))
 INVARIANT_NAMES = ("ricci-scalar", "kretschmann", "weyl-square")
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{0,79}$")
@@ -43,7 +46,7 @@ IDENT = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,39}$")
 _NAME = r"[A-Za-z][A-Za-z0-9_]*"
 FUNCTION_DECL = re.compile(rf"^\s*({_NAME})\s*\(\s*({_NAME}(?:\s*,\s*{_NAME})*)\s*\)\s*$")
 
-TOP_KEYS = ("id", "title", "summary", "field-equations", "tags", "references", "notes", "flat-when",
+TOP_KEYS = ("format", "id", "title", "summary", "field-equations", "tags", "references", "notes", "flat-when",
             "parameters", "charts", "limits")
 PARAM_KEYS = ("description", "assume", "range", "default")
 CHART_KEYS = ("coordinates", "domain", "functions", "define", "line-element", "metric", "cosmological-constant",
@@ -129,6 +132,9 @@ def decode_toml(path: Path) -> RawDocument:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(path), None, f"malformed TOML: {exc}") from None
+    except (RecursionError, ValueError, MemoryError) as exc:
+        raise InputError(str(path), None, f"malformed TOML: {type(exc).__name__} (nested too deeply "
+                                          "or a number too large)") from None
     return RawDocument(data, str(path))
 
 
@@ -138,12 +144,12 @@ def decode_json(path: Path) -> RawDocument:
         data = json.loads(text, parse_constant=_refuse_constant)
     except (json.JSONDecodeError, ValueError) as exc:
         raise InputError(str(path), None, f"malformed JSON: {exc}") from None
+    except (RecursionError, MemoryError) as exc:
+        raise InputError(str(path), None, f"malformed JSON: {type(exc).__name__} (nested too deeply)") from None
     if isinstance(data, dict) and data.get("format") == EXPORT_FORMAT and isinstance(data.get("metric"), dict):
         data = data["metric"]
     if not isinstance(data, dict):
         raise InputError(str(path), None, "a metric file must hold one object/table at the top")
-    data = dict(data)
-    data.pop("format", None)
     return RawDocument(data, str(path))
 
 
@@ -215,8 +221,8 @@ class _V:
     def ident(self, name, field: str, taken: dict[str, str]) -> str:
         if not isinstance(name, str) or not IDENT.match(name):
             self.fail(field, f"'{name}' is not a valid name (a letter, then letters, digits or '_')")
-        if name in RESERVED:
-            self.fail(field, f"'{name}' is reserved (a function or constant name)")
+        if name in RESERVED or keyword.iskeyword(name) or keyword.issoftkeyword(name):
+            self.fail(field, f"'{name}' is reserved (a function, constant or keyword name)")
         if name in taken:
             self.fail(field, f"'{name}' is already declared as a {taken[name]}")
         return name
@@ -252,6 +258,8 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
     """Check a decoded document and return its canonical form. Raises InputError."""
     v = _V(source)
     v.table(raw, "", TOP_KEYS)
+    if "format" in raw and raw["format"] != FORMAT:
+        v.fail("format", f"'{raw['format']}' is not a format this gravicat reads ({FORMAT})")
     for key in ("id", "title", "field-equations", "charts"):
         if key not in raw:
             v.fail(key, "missing (required)")
@@ -265,10 +273,11 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
     claim = v.string(raw["field-equations"], "field-equations")
     if claim not in FIELD_EQUATIONS:
         v.fail("field-equations", f"'{claim}' is not one of {', '.join(FIELD_EQUATIONS)}")
-    tags = sorted(set(v.str_list(raw.get("tags", []), "tags")))
+    tags = v.str_list(raw.get("tags", []), "tags")
     for i, tag in enumerate(tags):
         if not SLUG.match(tag):
             v.fail(f"tags[{i}]", f"'{tag}' is not a tag (lowercase letters, digits and '-')")
+    tags = sorted(set(tags))
     references = _references(v, raw.get("references", []))
     notes = v.string(raw.get("notes", ""), "notes").strip()
 
@@ -286,6 +295,9 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         for a in assume:
             if a not in ASSUMPTIONS:
                 v.fail(f"{field}.assume", f"'{a}' is not one of {', '.join(ASSUMPTIONS)}")
+        for x, y in CONFLICTING_ASSUMPTIONS:
+            if x in assume and y in assume:
+                v.fail(f"{field}.assume", f"'{x}' and '{y}' contradict each other")
         entry = {"description": v.string(spec.get("description", ""), f"{field}.description").strip(),
                  "assume": sorted(set(assume))}
         if "range" in spec:
@@ -367,7 +379,8 @@ def _substitutions(v: _V, value, field: str, names: Names, allowed: tuple[str, .
         if key not in (allowed if allowed is not None else names.symbols):
             v.fail(f"{field}.{key}", f"'{key}' is not a declared {'coordinate' if allowed else 'parameter'}")
         out[key] = v.expr(text, names, f"{field}.{key}")
-    return out
+    order = list(allowed) if allowed is not None else sorted(out)  # canonical: key order never matters
+    return {k: out[k] for k in order if k in out}
 
 
 def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], param_names: Names,
@@ -398,9 +411,12 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
     defines = {}
     for dname, text in v.table(craw.get("define", {}), f"{base}.define").items():
         v.ident(dname, f"{base}.define.{dname}", taken)
-        defines[dname] = v.expr(text, names, f"{base}.define.{dname}")
+        if isinstance(text, bool) or not isinstance(text, (str, int, float)):
+            v.fail(f"{base}.define.{dname}", f"must be an expression string, got {_kind(text)}")
+        tree, bits = check_expression_size(text, names, source=v.source, field=f"{base}.define.{dname}")
+        defines[dname] = canonical(tree)
         taken[dname] = "definition"
-        names = names.with_symbols([dname])
+        names = names.with_symbols([dname], {dname: bits} if bits is not None else None)
     chart: dict[str, Any] = {
         "coordinates": coords,
         "domain": [v.relation(t, names, f"{base}.domain[{i}]")
@@ -490,7 +506,7 @@ def _limit(v: _V, entry_id: str, lname: str, lraw, param_names: Names, charts: d
         v.fail(base, "limit names are slugs (lowercase letters, digits and '-')")
     v.table(lraw, base, LIMIT_KEYS)
     chart = lraw.get("chart", next(iter(charts)))
-    if chart not in charts:
+    if not isinstance(chart, str) or chart not in charts:
         v.fail(f"{base}.chart", f"'{chart}' is not a chart of this entry")
     coords = chart_coords[chart]
     names = Names(symbols=param_names.symbols | frozenset(coords), coordinates=frozenset(coords))
@@ -553,11 +569,18 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
 
     def build(text: str, field: str, extra_names=()):
         tree = check_expression(text, names.with_symbols(extra_names), source=source, field=field)
-        return to_sympy(tree, env, functions)
+        value = to_sympy(tree, env, functions)
+        if value.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
+            raise InputError(source, field, f"'{text}' is not finite ({value})")
+        return value
 
     for dname, text in c["define"].items():
-        env[dname] = build(text, f"{base}.define.{dname}")
-        names = names.with_symbols([dname])
+        field = f"{base}.define.{dname}"
+        tree, bits = check_expression_size(text, names, source=source, field=field)
+        env[dname] = to_sympy(tree, env, functions)
+        if env[dname].has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
+            raise InputError(source, field, f"'{text}' is not finite ({env[dname]})")
+        names = names.with_symbols([dname], {dname: bits} if bits is not None else None)
     n = len(coords)
     coord_list = list(coords.values())
     if "line-element" in c:
@@ -569,17 +592,24 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
         g = _quadratic_form(form, dsyms, source, f"{base}.line-element")
     else:
         g = sympy.Matrix(n, n, lambda i, j: build(c["metric"][i][j], f"{base}.metric[{i}][{j}]"))
+        for i in range(n):
+            for j in range(i + 1, n):
+                if g[i, j] != g[j, i] and sympy.cancel(g[i, j] - g[j, i]) != 0:
+                    raise InputError(source, f"{base}.metric[{i}][{j}]",
+                                     f"the matrix is not symmetric: '{c['metric'][i][j]}' differs from "
+                                     f"metric[{j}][{i}] = '{c['metric'][j][i]}'")
 
-    def relations(texts, field, nm):
+    def relations(texts, fields, nm):
         out = []
-        for i, text in enumerate(texts):
-            for rel in check_relation(text, nm, source=source, field=f"{field}[{i}]"):
+        for text, field in zip(texts, fields, strict=True):
+            for rel in check_relation(text, nm, source=source, field=field):
                 out.append(relation_to_sympy(rel, env, functions))
         return tuple(out)
 
-    domain = relations(c["domain"], f"{base}.domain", names)
+    domain = relations(c["domain"], [f"{base}.domain[{i}]" for i in range(len(c["domain"]))], names)
     pnames = Names(symbols=frozenset(params))
-    param_ranges = relations([p["range"] for p in data["parameters"].values() if "range" in p], "parameters", pnames)
+    ranged = [(k, p["range"]) for k, p in data["parameters"].items() if "range" in p]
+    param_ranges = relations([r for _, r in ranged], [f"parameters.{k}.range" for k, _ in ranged], pnames)
     defaults = {params[k]: build(p["default"], f"parameters.{k}.default")
                 for k, p in data["parameters"].items() if "default" in p}
 
