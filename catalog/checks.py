@@ -19,7 +19,7 @@ from typing import Any, Protocol, runtime_checkable
 
 
 class Status(enum.StrEnum):
-    """Outcome of one check. Ordered from best to worst by :data:`SEVERITY`."""
+    """Outcome of one check. :data:`SEVERITY` orders them for the overall status."""
 
     PASS = "pass"
     SKIPPED = "skipped"
@@ -28,12 +28,13 @@ class Status(enum.StrEnum):
     ERROR = "error"  # the verifier itself crashed: a bug to report, never a pass
 
 
-SEVERITY = {Status.PASS: 0, Status.SKIPPED: 1, Status.INCONCLUSIVE: 2, Status.FAIL: 3, Status.ERROR: 4}
+# A skipped check neither helps nor harms: it only shows when nothing else ran.
+SEVERITY = {Status.SKIPPED: 0, Status.PASS: 1, Status.INCONCLUSIVE: 2, Status.FAIL: 3, Status.ERROR: 4}
 
 
 def worst(statuses) -> Status:
-    """The worst of ``statuses`` (``pass`` for none)."""
-    out = Status.PASS
+    """The worst of ``statuses``; ``skipped`` only when every check was skipped (or none ran)."""
+    out = Status.SKIPPED
     for s in statuses:
         s = Status(s)
         if SEVERITY[s] > SEVERITY[out]:

@@ -1,0 +1,109 @@
+"""check / verify / invariants through the command line, on hand-typed files of our own scenario."""
+
+from __future__ import annotations
+
+import json
+
+import sympy
+from conftest import DATA
+
+GOOD = DATA / "corvin-exterior.toml"
+
+
+def broken_copy(tmp_path, old: str, new: str, name: str = "typo.toml"):
+    text = GOOD.read_text()
+    assert old in text
+    path = tmp_path / name
+    path.write_text(text.replace(old, new))
+    return path
+
+
+def test_check_passes_a_correct_schwarzschild_exterior(cli):
+    r = cli("check", str(GOOD), "--json")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert out["metric"] == "corvin9-exterior" and out["status"] == "pass"
+    checks = {c["check"]: c for c in out["charts"][0]["checks"]}
+    fe = checks["field-equations"]
+    assert fe["status"] == "pass" and fe["method"] == "symbolic" and fe["counterexample"] is None
+    assert set(fe) >= {"check", "status", "method", "detail", "counterexample", "seconds"}
+    assert checks["signature"]["status"] == "pass"
+
+
+def test_flipped_sign_fails_with_a_real_counterexample(cli, tmp_path):
+    # one flipped sign in g_rr (a typical transcription slip): no longer vacuum
+    bad = broken_copy(tmp_path, "dr**2/f", "dr**2/(1 + 2*M/r)")
+    r = cli("check", str(bad), "--json", "--only", "field-equations")
+    assert r.exit_code == 1
+    out = json.loads(r.stdout)
+    fe = out["charts"][0]["checks"][0]
+    assert out["status"] == "fail" and fe["status"] == "fail"
+    cex = fe["counterexample"]
+    assert cex and cex["component"] and cex["residual"] not in ("0", 0)
+    # the residual is real: recompute R_ab of the broken metric with sympy at the reported point
+    point = {k: sympy.Rational(v) for k, v in cex["point"].items() if "/" in v or v.lstrip("-").isdigit()}
+    assert "M" in point and "r" in point
+    t, r_, th, ph, M = sympy.symbols("t r theta phi M")
+    g = sympy.diag(-(1 - 2 * M / r_), 1 / (1 + 2 * M / r_), r_**2, r_**2 * sympy.sin(th) ** 2)
+    coords = [t, r_, th, ph]
+    ginv = g.inv()
+    gamma = [[[sum(ginv[a, d] * (sympy.diff(g[d, b], coords[c]) + sympy.diff(g[d, c], coords[b])
+                                 - sympy.diff(g[b, c], coords[d])) for d in range(4)) / 2
+               for c in range(4)] for b in range(4)] for a in range(4)]
+    rrr = sum(sympy.diff(gamma[a][1][1], coords[a]) - sympy.diff(gamma[a][1][a], coords[1])
+              + sum(gamma[a][a][e] * gamma[e][1][1] - gamma[a][1][e] * gamma[e][a][1] for e in range(4))
+              for a in range(4))
+    assert sympy.simplify(rrr.subs({M: point["M"], r_: point["r"]})) != 0  # R_rr != 0 there
+
+
+def test_wrong_published_invariant_fails(cli, tmp_path):
+    bad = broken_copy(tmp_path, 'value = "48*M**2/r**6"', 'value = "24*M**2/r**6"')
+    r = cli("check", str(bad), "--json", "--only", "invariants")
+    assert r.exit_code == 1
+    checks = json.loads(r.stdout)["charts"][0]["checks"]
+    assert any(c["status"] == "fail" and c["counterexample"] for c in checks)
+
+
+def test_unknown_check_and_chart_are_input_errors(cli):
+    r = cli("check", str(GOOD), "--only", "horoscope")
+    assert r.exit_code == 2 and "horoscope" in r.stderr and len(r.stderr.strip().splitlines()) == 1
+    r = cli("check", str(GOOD), "--chart", "kruskal")
+    assert r.exit_code == 2 and "charts.kruskal" in r.stderr
+
+
+def test_verify_stores_then_reuses_then_forces(empty_catalogue):
+    cli = empty_catalogue
+    assert cli("add", str(GOOD)).exit_code == 0
+    assert json.loads(cli("list", "--json").stdout)[0]["status"] == "unverified"
+    first = cli("verify", "corvin9-exterior", "--json")
+    assert first.exit_code == 0, first.output
+    out = json.loads(first.stdout)["entries"][0]
+    assert out["status"] == "pass" and out["computed"] == 1
+    again = json.loads(cli("verify", "--all", "--json").stdout)["entries"][0]
+    assert again["computed"] == 0 and again["status"] == "pass"
+    forced = json.loads(cli("verify", "--all", "--force", "--json").stdout)["entries"][0]
+    assert forced["computed"] == 1
+    listed = json.loads(cli("list", "--json", "--status", "pass").stdout)
+    assert [row["id"] for row in listed] == ["corvin9-exterior"]
+    shown = json.loads(cli("show", "corvin9-exterior", "--json").stdout)
+    assert {c["check"] for c in shown["checks"]} >= {"structure", "signature", "field-equations"}
+    exported = json.loads(cli("export", "corvin9-exterior").stdout)
+    assert exported["checks"] and all(c["status"] in ("pass", "skipped") for c in exported["checks"])
+
+
+def test_verify_needs_ids_or_all(empty_catalogue):
+    r = empty_catalogue("verify")
+    assert r.exit_code == 2 and "--all" in r.stderr
+
+
+def test_invariants_of_schwarzschild(cli):
+    # Kretschmann 48 M^2 / r^6: Misner, Thorne & Wheeler, Gravitation (1973), eq. 31.4 (value recalled
+    # from memory); Ricci scalar 0 (vacuum)
+    r = cli("invariants", str(GOOD), "--json")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    chart = out["charts"][0]
+    M, rr = sympy.symbols("M r", positive=True)
+    k = sympy.sympify(chart["kretschmann"], locals={"M": M, "r": rr})
+    assert sympy.simplify(k - 48 * M**2 / rr**6) == 0
+    assert sympy.sympify(chart["ricci_scalar"]) == 0
