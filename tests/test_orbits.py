@@ -1,0 +1,492 @@
+"""Observer physics (``gravicat orbits``) against published results.
+
+Every landmark is computed by the tool from the metric of a bundled catalogue
+file; the expected values below are closed forms from the literature (cited
+beside each check) evaluated independently here with mpmath / sympy.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from functools import cache
+
+import mpmath
+import pytest
+
+from gravicat import orbits, units
+from gravicat.errors import InputError
+from gravicat.metricfile import build_chart, load_file
+from gravicat.store import bundled_files
+
+BUNDLED = {p.stem: p for p in bundled_files()}
+KERR, SCHW, RN = (str(BUNDLED[n]) for n in ("kerr", "schwarzschild", "reissner-nordstrom"))
+
+
+@cache
+def _chart(entry: str, chart: str | None = None):
+    doc = load_file(BUNDLED[entry])
+    spec = build_chart(doc, chart)
+    return doc, spec, orbits.EquatorialChart(spec, doc.chart_names)
+
+
+@cache
+def model(entry: str, settings: tuple[str, ...], chart: str | None = None) -> orbits.Equatorial:
+    doc, spec, eq = _chart(entry, chart)
+    return eq.bind(orbits.resolve_parameters(doc, spec, settings))
+
+
+def one_error_line(result) -> str:
+    lines = [line for line in result.stderr.splitlines() if line.strip()]
+    assert len(lines) == 1, result.stderr
+    assert lines[0].startswith("Error: ")
+    assert "Traceback" not in result.output
+    return lines[0]
+
+
+# --------------------------------------------------------------------------- Schwarzschild
+
+
+@pytest.mark.parametrize("mass", ["1", "2.5"])
+def test_schwarzschild_landmarks(mass):
+    # Horizon 2M, photon sphere 3M, ISCO 6M: S. M. Carroll, Spacetime and Geometry (2004), sections 5.4-5.6
+    # (circular orbits of the effective potential). Marginally bound orbit 4M: C. W. Misner, K. S. Thorne and
+    # J. A. Wheeler, Gravitation (1973), chapter 25, and Bardeen, Press & Teukolsky, ApJ 178 (1972) 347,
+    # eq. (2.19) with a = 0 (equation number recalled from memory).
+    M = float(mass)
+    m = model("schwarzschild", (f"M={mass}",))
+    assert [q.radius for q in m.horizons.roots] == pytest.approx([2 * M], rel=1e-14)
+    assert m.static_limit == pytest.approx(2 * M, rel=1e-14)
+    for d in orbits.DIRECTIONS:
+        assert m.landmarks["photon_orbits"][d] == pytest.approx(3 * M, rel=1e-12)
+        assert m.landmarks["marginally_bound"][d] == pytest.approx(4 * M, rel=1e-12)
+        assert m.landmarks["isco"][d] == pytest.approx(6 * M, rel=1e-12)
+
+
+@pytest.mark.parametrize("x", [6.5, 10.0, 57.0])
+def test_schwarzschild_circular_orbits_and_static_observers(x):
+    # Circular geodesics: Omega = sqrt(M/r^3) (Kepler's law holds exactly in Schwarzschild time),
+    # u^t = 1/sqrt(1 - 3M/r), E = (1 - 2M/r)/sqrt(1 - 3M/r), L = sqrt(M r)/sqrt(1 - 3M/r):
+    # Carroll (2004) section 5.4 and exercises of chapter 5; Bardeen, Press & Teukolsky (1972) eqs. (2.12)-(2.16)
+    # with a = 0 (equation numbers recalled from memory). Static observers: u^t = 1/sqrt(1 - 2M/r) (Carroll 2004,
+    # section 5.4, gravitational redshift).
+    M = 1.5
+    r = x * M
+    m = model("schwarzschild", ("M=1.5",))
+    for d, sign in (("prograde", 1), ("retrograde", -1)):
+        c = m.circular(r, d)
+        assert c["exists"] and c["stable"] is (r > 6 * M) and c["bound"] is (r > 4 * M)
+        assert c["Omega"] == pytest.approx(sign * (M / r**3) ** 0.5, rel=1e-13)
+        assert c["u"]["t"] == pytest.approx((1 - 3 * M / r) ** -0.5, rel=1e-13)
+        assert c["u"]["phi"] == pytest.approx(c["u"]["t"] * c["Omega"], rel=1e-13)
+        assert c["energy"] == pytest.approx((1 - 2 * M / r) / (1 - 3 * M / r) ** 0.5, rel=1e-13)
+        assert c["angular_momentum"] == pytest.approx(sign * (M * r) ** 0.5 / (1 - 3 * M / r) ** 0.5, rel=1e-13)
+        assert c["norm_residual"] < 1e-14 and c["geodesic_residual"] < 1e-13
+    s = m.static_observer(r)
+    assert s["u"]["t"] == pytest.approx((1 - 2 * M / r) ** -0.5, rel=1e-14)
+    assert s["clock_rate"] == pytest.approx((1 - 2 * M / r) ** 0.5, rel=1e-14)
+
+
+def test_inside_the_photon_sphere_there_is_no_timelike_circular_orbit():
+    # Carroll (2004) section 5.4: no circular orbits of massive particles inside r = 3M.
+    m = model("schwarzschild", ("M=1",))
+    c = m.circular(2.9, "prograde")
+    assert c["exists"] is False and "photon orbit" in c["reason"]
+    assert m.circular(1.5, "prograde")["exists"] is False
+    assert m.static_observer(1.5)["exists"] is False
+
+
+def test_other_charts_of_schwarzschild_give_the_same_physics():
+    # The isotropic radius: r = rho (1 + M/(2 rho))^2 (MTW 1973, eq. 31.22, recalled from memory; the
+    # same transform is in the catalogue file). The horizon r = 2M is rho = M/2, a double zero of
+    # g_tt g_phiphi there; photon sphere and ISCO map to rho = (2 + sqrt 3) M/2 and (5 + 2 sqrt 6) M/2.
+    # Ingoing Eddington-Finkelstein and Painleve-Gullstrand keep r, so the landmarks stay at 2M, 3M, 4M, 6M.
+    iso = model("schwarzschild", ("M=1",), "isotropic")
+    assert [(q.radius, q.multiplicity) for q in iso.horizons.roots] == [(pytest.approx(0.5, rel=1e-14), 2)]
+    assert iso.landmarks["photon_orbits"]["prograde"] == pytest.approx((2 + 3**0.5) / 2, rel=1e-12)
+    assert iso.landmarks["isco"]["retrograde"] == pytest.approx((5 + 2 * 6**0.5) / 2, rel=1e-12)
+    rho = (4 + 12**0.5) / 2  # r = 4M + ... : any radius; compare Omega at the same areal radius
+    r = rho * (1 + 1 / (2 * rho)) ** 2
+    assert iso.circular(rho, "prograde")["Omega"] == pytest.approx(r**-1.5, rel=1e-13)
+    for chart in ("ingoing-eddington-finkelstein", "painleve-gullstrand"):
+        m = model("schwarzschild", ("M=2",), chart)
+        assert [q.radius for q in m.horizons.roots] == pytest.approx([4.0])
+        assert [m.landmarks[k]["prograde"] for k in ("photon_orbits", "marginally_bound", "isco")] == \
+            pytest.approx([6.0, 8.0, 12.0], rel=1e-12)
+        assert m.circular(20.0, "prograde")["Omega"] == pytest.approx((2 / 20.0**3) ** 0.5, rel=1e-13)
+
+
+# --------------------------------------------------------------------------- Kerr
+
+
+def bpt_isco(a, M, sign):
+    """Bardeen, Press & Teukolsky, ApJ 178 (1972) 347, eq. (2.21); sign -1 prograde, +1 retrograde."""
+    chi = mpmath.mpf(a) / M
+    z1 = 1 + mpmath.cbrt(1 - chi**2) * (mpmath.cbrt(1 + chi) + mpmath.cbrt(1 - chi))
+    z2 = mpmath.sqrt(3 * chi**2 + z1**2)
+    return M * (3 + z2 + sign * mpmath.sqrt((3 - z1) * (3 + z1 + 2 * z2)))
+
+
+@pytest.mark.parametrize("spin", ["0.5", "0.9", "0.998"])
+def test_kerr_landmarks_match_bardeen_press_teukolsky(spin):
+    # Horizons r = M +- sqrt(M^2 - a^2) (Boyer & Lindquist 1967; Carroll 2004 section 6.6).
+    # ISCO: BPT 1972 eq. (2.21); photon orbits r = 2M(1 + cos(2/3 arccos(-+a/M))) eq. (2.18); marginally
+    # bound r = 2M -+ a + 2 sqrt(M) sqrt(M -+ a) eq. (2.19) (equation numbers recalled from memory).
+    # Ergosurface on the equator r = 2M (Carroll 2004 section 6.6).
+    mpmath.mp.dps = 30
+    a, M = mpmath.mpf(spin), mpmath.mpf(1)
+    m = model("kerr", ("M=1", f"a={spin}"))
+    root = mpmath.sqrt(M**2 - a**2)
+    assert [q.radius for q in m.horizons.roots] == pytest.approx([float(M - root), float(M + root)], rel=1e-13)
+    assert [q.radius for q in m.ergosurface.roots] == pytest.approx([2.0], rel=1e-14)
+    for d, s in (("prograde", -1), ("retrograde", 1)):
+        assert abs(m.landmarks["isco"][d] - float(bpt_isco(a, M, s))) < 1e-8
+        photon = 2 * M * (1 + mpmath.cos(mpmath.mpf(2) / 3 * mpmath.acos(s * a / M)))
+        assert abs(m.landmarks["photon_orbits"][d] - float(photon)) < 1e-8
+        bound = 2 * M + s * a + 2 * mpmath.sqrt(M) * mpmath.sqrt(M + s * a)
+        assert abs(m.landmarks["marginally_bound"][d] - float(bound)) < 1e-8
+
+
+def test_kerr_scales_with_the_mass():
+    # Every landmark is M times a function of a/M (dimensional analysis; BPT 1972 quote them in units of M).
+    m = model("kerr", ("M=2", "a=1.8"))
+    assert abs(m.landmarks["isco"]["prograde"] - float(bpt_isco(1.8, 2, -1))) < 1e-8
+    assert abs(m.landmarks["isco"]["retrograde"] - float(bpt_isco(1.8, 2, 1))) < 1e-8
+
+
+@pytest.mark.parametrize("x", [4.0, 10.0, 30.0])
+def test_kerr_circular_orbits_zamos_and_horizon_rotation(x):
+    # BPT 1972 eqs. (2.12)-(2.16) (recalled from memory), upper sign prograde, with
+    # X = sqrt(r^1.5 - 3M sqrt r +- 2a sqrt M):
+    #   Omega = +-sqrt(M)/(r^1.5 +- a sqrt(M)),  u^t = (r^1.5 +- a sqrt M)/(r^0.75 X),
+    #   E = (r^1.5 - 2M sqrt r +- a sqrt M)/(r^0.75 X),  L = +-sqrt(M)(r^2 -+ 2a sqrt(M r) + a^2)/(r^0.75 X).
+    # ZAMO angular velocity omega = 2 M a r / A, A = (r^2 + a^2)^2 - a^2 Delta on the equator (BPT 1972, section
+    # on locally non-rotating frames); horizon angular velocity a/(r_+^2 + a^2) (Carroll 2004 section 6.6;
+    # recalled from memory).
+    M, a = 1.0, 0.9
+    r = x * M
+    m = model("kerr", ("M=1", "a=0.9"))
+    for d, s in (("prograde", 1), ("retrograde", -1)):
+        c = m.circular(r, d)
+        root = (r**1.5 - 3 * M * r**0.5 + s * 2 * a * M**0.5) ** 0.5
+        assert c["Omega"] == pytest.approx(s * M**0.5 / (r**1.5 + s * a * M**0.5), rel=1e-12)
+        assert c["u"]["t"] == pytest.approx((r**1.5 + s * a * M**0.5) / (r**0.75 * root), rel=1e-12)
+        assert c["energy"] == pytest.approx((r**1.5 - 2 * M * r**0.5 + s * a * M**0.5) / (r**0.75 * root), rel=1e-12)
+        assert c["angular_momentum"] == pytest.approx(
+            s * M**0.5 * (r**2 - s * 2 * a * (M * r) ** 0.5 + a**2) / (r**0.75 * root), rel=1e-12)
+        assert c["norm_residual"] < 1e-13 and c["geodesic_residual"] < 1e-13
+    assert m.circular(r, "prograde")["angular_momentum"] > 0 > m.circular(r, "retrograde")["angular_momentum"]
+    delta = r**2 - 2 * M * r + a**2
+    z = m.zamo(r)
+    assert z["angular_velocity"] == pytest.approx(2 * M * a * r / ((r**2 + a**2) ** 2 - a**2 * delta), rel=1e-13)
+    assert z["u"]["t"] == pytest.approx((((r**2 + a**2) ** 2 - a**2 * delta) / (delta * r**2)) ** 0.5, rel=1e-13)
+    r_plus = M + (M**2 - a**2) ** 0.5
+    assert m.horizon_angular_velocity(r_plus) == pytest.approx(a / (r_plus**2 + a**2), rel=1e-12)
+    static = m.static_observer(r)
+    assert static["exists"] is (r > 2 * M)
+
+
+def test_circular_orbit_derivatives_against_mpmath():
+    # dE/dr and dL/dr come from the chain rule; check them against mpmath's numerical differentiation
+    # (general-purpose reference library), and the first-law relation dE = Omega dL along the family of
+    # circular orbits (J. M. Bardeen, in Black Holes, Les Houches 1972, eq. for circular orbits; common
+    # result, recalled from memory).
+    m = model("kerr", ("M=1", "a=0.7"))
+    with mpmath.workdps(40):
+        for d in orbits.DIRECTIONS:
+            for r in (mpmath.mpf(5), mpmath.mpf("12.5")):
+                o = m.orbit_mp(r, d)
+                dE = mpmath.diff(lambda x, d=d: m.orbit_mp(x, d)["energy"], r)
+                dL = mpmath.diff(lambda x, d=d: m.orbit_mp(x, d)["L"], r)
+                assert abs(o["dE"] - dE) < mpmath.mpf(10) ** -25
+                assert abs(o["dL"] - dL) < mpmath.mpf(10) ** -25
+                assert abs(o["dE"] - o["Omega"] * o["dL"]) < mpmath.mpf(10) ** -30
+
+
+def test_extremal_kerr_has_one_degenerate_horizon():
+    # a = M: Delta = (r - M)^2, one horizon at r = M (Carroll 2004 section 6.6). In Boyer-Lindquist
+    # coordinates the prograde ISCO, photon orbit and marginally bound orbit all tend to r = M
+    # (BPT 1972, discussion after eq. 2.21), so none lies outside the horizon; the retrograde ISCO is 9M
+    # and the retrograde photon orbit 4M (BPT 1972 eqs. 2.18, 2.21 at a = M).
+    m = model("kerr", ("M=1", "a=1"))
+    assert [(q.radius, q.multiplicity) for q in m.horizons.roots] == [(pytest.approx(1.0), 2)]
+    assert m.landmarks["isco"]["prograde"] is None and m.landmarks["photon_orbits"]["prograde"] is None
+    assert m.landmarks["isco"]["retrograde"] == pytest.approx(9.0, abs=1e-8)
+    assert m.landmarks["photon_orbits"]["retrograde"] == pytest.approx(4.0, abs=1e-8)
+
+
+def test_kerr_newman_without_charge_is_kerr():
+    # Kerr-Newman with Q = 0 is Kerr (Newman et al. 1965): the same BPT 1972 eq. (2.21) ISCO, from a metric
+    # written differently in its catalogue file.
+    m = model("kerr-newman", ("M=1", "Q=0", "a=0.7"))
+    assert abs(m.landmarks["isco"]["prograde"] - float(bpt_isco(0.7, 1, -1))) < 1e-8
+    assert abs(m.landmarks["isco"]["retrograde"] - float(bpt_isco(0.7, 1, 1))) < 1e-8
+
+
+# --------------------------------------------------------------------------- Reissner-Nordstrom
+
+
+@cache
+def _rn_conditions():
+    """ISCO and photon-sphere conditions of Reissner-Nordstrom, derived here with sympy (not by the tool).
+
+    Effective potential of timelike geodesics V = f (1 + L^2/r^2), f = 1 - 2M/r + Q^2/r^2 (Carroll 2004,
+    section 5.4, with Schwarzschild's f replaced by this one; standard). Circular: V' = 0 gives L^2; marginally
+    stable: V'' = 0 too. Eliminating L^2 leaves M r^3 - 6 M^2 r^2 + 9 M Q^2 r - 4 Q^4 = 0 (checked below), which
+    is r = 6M at Q = 0. Photon sphere: d(f/r^2)/dr = 0.
+    """
+    import sympy as sp
+
+    r, L2, m, q = sp.symbols("r L2 m q", positive=True)
+    f = 1 - 2 * m / r + q**2 / r**2
+    V = f * (1 + L2 / r**2)
+    l2 = sp.solve(sp.diff(V, r), L2)[0]
+    cond = sp.numer(sp.together(sp.diff(V, r, 2).subs(L2, l2)))
+    cubic = m * r**3 - 6 * m**2 * r**2 + 9 * m * q**2 * r - 4 * q**4
+    assert sp.cancel(cond / cubic).is_number  # the condition is the cubic times a constant
+    return r, m, q, cubic, sp.numer(sp.together(sp.diff(f / r**2, r)))
+
+
+def _rn_reference(M, Q):
+    import sympy as sp
+
+    r, m, q, cubic, photon_condition = _rn_conditions()
+
+    def largest_real_root(expr):
+        roots = sp.Poly(expr.subs({m: sp.nsimplify(M), q: sp.nsimplify(Q)}), r).nroots(n=30)
+        return max(float(sp.re(x)) for x in roots if abs(sp.im(x)) < 1e-20)
+
+    return largest_real_root(cubic), largest_real_root(photon_condition)
+
+
+@pytest.mark.parametrize("charge", ["0.5", "0.8", "1"])
+def test_reissner_nordstrom(charge):
+    # Horizons M +- sqrt(M^2 - Q^2) (Carroll 2004 section 6.5); ISCO and photon sphere derived above. At Q = M
+    # (extremal) the ISCO is 4M and the photon sphere 2M (value recalled from memory; the cubic gives
+    # (r - M)^2 (r - 4M) = 0 there).
+    M, Q = 1.0, float(charge)
+    m = model("reissner-nordstrom", ("M=1", f"Q={charge}"))
+    radii = [q.radius for q in m.horizons.roots]
+    expected = sorted({M - (M**2 - Q**2) ** 0.5, M + (M**2 - Q**2) ** 0.5})
+    assert radii == pytest.approx(expected, rel=1e-13)
+    isco, photon = _rn_reference(M, Q)
+    for d in orbits.DIRECTIONS:
+        assert abs(m.landmarks["isco"][d] - isco) < 1e-8
+        assert abs(m.landmarks["photon_orbits"][d] - photon) < 1e-8
+    if charge == "1":
+        assert isco == pytest.approx(4.0) and photon == pytest.approx(2.0)
+        assert m.horizons.roots[0].multiplicity == 2
+
+
+def test_default_parameters_are_used_and_reported(cli):
+    result = cli("orbits", RN, "--set", "M=1", "--json")
+    assert result.exit_code == 0, result.output
+    rep = json.loads(result.stdout)
+    assert rep["defaults_used"] == ["Q"] and rep["parameters"] == {"M": 1.0, "Q": 0.5}
+    assert "Q not given: using its default Q = 1/2" in rep["notes"]
+    human = cli("orbits", RN, "--set", "M=1")
+    assert "note: Q not given: using its default Q = 1/2" in human.stdout
+
+
+# --------------------------------------------------------------------------- clocks and SI units
+
+
+# Earth (WGS 84): GM = 3.986004418e14 m^3/s^2, equatorial radius 6 378 137 m, rotation 7.2921151467e-5 rad/s
+# (National Imagery and Mapping Agency, Department of Defense World Geodetic System 1984, TR8350.2, 3rd edition,
+# 2000, table 3.1; values recalled from memory). J2 = 1.0826300e-3, as used by N. Ashby, Relativity in the
+# Global Positioning System, Living Reviews in Relativity 6 (2003) 1, in the geoid potential Phi_0
+# (value recalled from memory). Orbit radius 26 561.75 km: Ashby (2003), section 5.
+EARTH = ["--set", "M=3.986004418e14", "--surface-radius", "6378137", "--surface-rotation", "7.2921151467e-5",
+         "--surface-j2", "1.08263e-3"]
+
+
+def test_navigation_satellite_clock_offsets(cli):
+    # Ashby (2003), section 5: relative to a clock on the rotating geoid, an orbiting clock at 26 561.75 km
+    # gains about +45.7 us/day from the gravitational shift, loses about -7.2 us/day from its motion, net
+    # about +38.6 us/day. Compared to the precision quoted (0.1 us/day).
+    result = cli("orbits", SCHW, "--units", "si", "--radius", "26561750", *EARTH, "--json")
+    assert result.exit_code == 0, result.output
+    rep = json.loads(result.stdout)
+    assert rep["units"]["system"] == "si" and rep["parameters"]["M"] == pytest.approx(3.986004418e14 / 299792458**2)
+    clock = next(c for c in rep["clock_comparison"] if c["direction"] == "prograde")
+    per_day = clock["us_per_day"]
+    assert round(per_day["net"], 1) == 38.6
+    assert round(per_day["gravitational"], 1) == 45.7
+    assert round(per_day["orbital_velocity"], 1) == -7.2
+    assert 0.05 < per_day["surface_rotation"] < 0.15  # the ground clock's own motion, (Omega_E R)^2/(2c^2)
+    orbit = next(c for c in rep["circular"] if c["direction"] == "prograde")
+    # Kepler: Omega = sqrt(GM/r^3) in rad/s (Carroll 2004 section 5.4: exact in Schwarzschild time)
+    assert orbit["Omega"] == pytest.approx((3.986004418e14 / 26561750.0**3) ** 0.5, rel=1e-12)
+    assert orbit["clock_offset_us_per_day"] == pytest.approx(-1.5 * 3.986004418e14 / 299792458**2 / 26561750
+                                                             * 86400e6, rel=1e-6)
+
+
+def test_clock_comparison_against_the_exact_schwarzschild_expressions():
+    # Exact Schwarzschild: orbiting clock d tau/dt = sqrt(1 - 3GM/(c^2 r)); a clock at rest on a surface
+    # rotating at Omega_E: sqrt(1 - 2GM/(c^2 R) - (Omega_E R/c)^2) (Carroll 2004 eq. 5.x for the redshift of
+    # moving emitters; written here from the line element), independently of the tool.
+    gm, r, R, w = 3.986004418e14, 26561750.0, 6378137.0, 7.2921151467e-5
+    mass = units.gm_to_length(gm)
+    doc, spec, eq = _chart("schwarzschild")
+    m = eq.bind(orbits.resolve_parameters(doc, spec, [f"M={gm}"], units="si"))
+    c = orbits.compare_clocks(m, r, R, units.angular_velocity_from_si(w))
+    expected = mpmath.sqrt(1 - 3 * mpmath.mpf(mass) / r) / mpmath.sqrt(
+        1 - 2 * mpmath.mpf(mass) / R - (mpmath.mpf(w) * R / units.C) ** 2) - 1
+    assert c.net == pytest.approx(float(expected), rel=1e-9)
+    parts = (1 + c.gravitational) * (1 + c.orbital_velocity) * (1 + c.surface_rotation_part)
+    assert 1 + c.net == pytest.approx(parts, rel=1e-15)
+
+
+def test_units_conversions():
+    # c = 299 792 458 m/s exactly (BIPM, SI Brochure, 9th ed. 2019); G = 6.67430e-11 (CODATA 2018).
+    assert units.C == 299_792_458.0
+    assert units.gm_to_length(3.986004418e14) == pytest.approx(3.986004418e14 / 299_792_458.0**2, rel=1e-15)
+    assert units.length_to_gm(units.gm_to_length(1.32712440018e20)) == pytest.approx(1.32712440018e20, rel=1e-15)
+    assert units.kilograms_to_length(1.0) == pytest.approx(6.67430e-11 / 299_792_458.0**2)
+    assert units.angular_velocity_to_si(units.angular_velocity_from_si(7.29e-5)) == pytest.approx(7.29e-5)
+    assert units.seconds_to_length(1.0) == 299_792_458.0 and units.length_to_seconds(299_792_458.0) == 1.0
+    assert units.per_day_microseconds(1e-10) == pytest.approx(8.64)
+
+
+def test_si_mode_needs_every_parameter(cli):
+    result = cli("orbits", KERR, "--units", "si", "--set", "M=1.3e20")
+    assert result.exit_code == 2
+    assert "--set: a: no value given; with --units si" in one_error_line(result)
+
+
+# --------------------------------------------------------------------------- CLI, JSON, plot
+
+
+def test_cli_json_shape_for_kerr(cli):
+    result = cli("orbits", KERR, "--set", "M=1", "--set", "a=0.9", "--radius", "10", "--radius", "6*M", "--json")
+    assert result.exit_code == 0, result.output
+    rep = json.loads(result.stdout)
+    assert {"metric", "chart", "coordinates", "units", "parameters", "horizons", "ergosurface", "static_limit",
+            "photon_orbits", "marginally_bound", "isco", "circular", "static_observers", "zamo", "notes"} <= set(rep)
+    assert rep["metric"] == "kerr" and rep["chart"] == "boyer-lindquist"
+    assert rep["coordinates"] == {"time": "t", "radial": "r", "azimuthal": "phi", "polar": "theta"}
+    assert rep["horizons"]["count"] == 2 and len(rep["horizons"]["radii"]) == 2
+    for key in ("photon_orbits", "marginally_bound", "isco"):
+        assert set(rep[key]) == {"prograde", "retrograde"}
+    assert abs(rep["isco"]["prograde"] - float(bpt_isco(0.9, 1, -1))) < 1e-8
+    assert [(c["radius"], c["direction"]) for c in rep["circular"]] == [
+        (10.0, "prograde"), (10.0, "retrograde"), (6.0, "prograde"), (6.0, "retrograde")]
+    first = rep["circular"][0]
+    assert {"Omega", "u", "energy", "angular_momentum", "stable", "bound", "clock_rate", "norm_residual"} <= set(first)
+    assert first["norm_residual"] < 1e-13
+    assert [z["radius"] for z in rep["zamo"]] == [10.0, 6.0]
+    # a static chart has no ZAMO section
+    static = json.loads(cli("orbits", SCHW, "--json").stdout)
+    assert static["zamo"] is None and static["defaults_used"] == ["M"]
+
+
+def test_cli_text_output(cli):
+    result = cli("orbits", KERR, "--set", "M=1", "--set", "a=0.9", "--radius", "10")
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert "horizons: 2 found" in out and "ISCO" in out and "zero-angular-momentum observers" in out
+    assert "2.32088304" in out  # the prograde ISCO (BPT 1972 eq. 2.21 gives 2.320883042 at a = 0.9)
+
+
+def test_cli_accepts_a_catalogue_id(empty_catalogue):
+    cli = empty_catalogue
+    assert cli("add", SCHW).exit_code == 0
+    result = cli("orbits", "schwarzschild", "--set", "M=2", "--json")
+    assert result.exit_code == 0, result.output
+    assert json.loads(result.stdout)["isco"]["prograde"] == pytest.approx(12.0)
+
+
+def test_plot_writes_a_png(cli, tmp_path):
+    pytest.importorskip("matplotlib")
+    path = tmp_path / "kerr.png"
+    result = cli("orbits", KERR, "--set", "M=1", "--set", "a=0.9", "--radius", "10", "--plot", str(path))
+    assert result.exit_code == 0, result.output
+    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and path.stat().st_size > 10_000
+
+
+def test_plot_without_matplotlib_is_a_one_line_error(cli, tmp_path, monkeypatch):
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    monkeypatch.setitem(sys.modules, "matplotlib.figure", None)
+    result = cli("orbits", SCHW, "--plot", str(tmp_path / "x.png"))
+    assert result.exit_code == 2
+    assert "matplotlib is not installed" in one_error_line(result)
+    assert not (tmp_path / "x.png").exists()
+
+
+# --------------------------------------------------------------------------- bad input
+
+
+@pytest.mark.parametrize("args, expected", [
+    (["--set", "a=1.2"], "--set: a: a = 1.2 is outside its range 0 <= a <= M (with M = 1)"),
+    (["--set", "M=-1"], "--set: M: M = -1 is outside its range M > 0"),
+    (["--set", "b=1"], "--set: b: not a parameter of kerr (parameters: M, a)"),
+    (["--set", "M"], "--set: 'M' is not NAME=VALUE"),
+    (["--set", "M=__import__('os')"], "--set: M: unknown function '__import__'"),
+    (["--set", "a=sqrt(-1)"], "--set: a: 'sqrt(-1)' is not a real number"),
+    (["--chart", "kerr-schild"], "charts.kerr-schild: the metric depends on x, y, z: not axisymmetric"),
+    (["--chart", "nope"], "charts.nope: no such chart (charts: boyer-lindquist, kerr-schild)"),
+    (["--radius", "-3"], "--radius: -3: a radius must be positive"),
+    (["--surface-rotation", "1"], "--surface-rotation: needs --surface-radius"),
+])
+def test_bad_input_is_one_line_and_exit_2(cli, args, expected):
+    result = cli("orbits", KERR, *args)
+    assert result.exit_code == 2, result.output
+    assert expected in one_error_line(result)
+
+
+def test_non_stationary_and_flat_charts_are_refused(cli):
+    result = cli("orbits", SCHW, "--chart", "kruskal-szekeres")
+    assert result.exit_code == 2
+    assert "depends on the first coordinate T: the chart is not stationary" in one_error_line(result)
+    flat = cli("orbits", str(BUNDLED["minkowski"]), "--chart", "cartesian")
+    assert flat.exit_code == 2 and "no radial structure" in one_error_line(flat)
+
+
+TOY = """
+id = "toy-{name}"
+title = "Toy metric for tests"
+field-equations = "none"
+[parameters.M]
+assume = ["positive"]
+range = "M > 0"
+default = "1"
+[charts.main]
+coordinates = ["t", "r", "theta", "phi"]
+domain = ["r > 0", "0 < theta < pi"]
+line-element = "{line}"
+"""
+
+
+def _toy(tmp_path, name, line):
+    path = tmp_path / f"{name}.toml"
+    path.write_text(TOY.format(name=name, line=line))
+    return str(path)
+
+
+def test_a_metric_not_symmetric_about_the_equator_is_refused(cli, tmp_path):
+    path = _toy(tmp_path, "tilted", "-(1 - 2*M/r + M**2*cos(theta)/r**2)*dt**2 + dr**2 + "
+                                    "r**2*(dtheta**2 + sin(theta)**2*dphi**2)")
+    result = cli("orbits", path)
+    assert result.exit_code == 2
+    assert "not reflection-symmetric about theta = pi/2" in one_error_line(result)
+
+
+def test_horizons_of_a_non_rational_metric_are_found_by_scanning(tmp_path):
+    # g_tt = -(1 - sqrt(M/r))**2 vanishes at r = M with even multiplicity (no sign change), and
+    # g_tt = -(1 - sqrt(2M/r)) at r = 2M with a sign change: neither is a rational function of r, so the
+    # grid search (sign changes, and zeros of the derivative where the function vanishes) must find them.
+    for name, line, radius, multiplicity in (
+            ("double", "-(1 - sqrt(M/r))**2*dt**2 + dr**2 + r**2*(dtheta**2 + sin(theta)**2*dphi**2)", 1.0, 2),
+            ("simple", "-(1 - sqrt(2*M/r))*dt**2 + dr**2 + r**2*(dtheta**2 + sin(theta)**2*dphi**2)", 2.0, 1)):
+        doc = load_file(_toy(tmp_path, name, line))
+        spec = build_chart(doc)
+        m = orbits.EquatorialChart(spec).bind(orbits.resolve_parameters(doc, spec, ["M=1"]))
+        assert "grid" in m.horizons.method
+        assert [(q.radius, q.multiplicity) for q in m.horizons.roots] == [(pytest.approx(radius, rel=1e-12),
+                                                                           multiplicity)]
+
+
+def test_library_refuses_missing_parameters():
+    _, _, eq = _chart("kerr")
+    with pytest.raises(InputError, match="no value given"):
+        eq.bind({"M": 1})
