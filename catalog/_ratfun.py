@@ -1,0 +1,1169 @@
+"""Exact differential field of a chart, on python-flint (the "flint" fast path).
+
+Every expression of a chart is mapped to an element of a field
+
+    K = Q(b_1, ..., b_n)[s_1, ..., s_k]
+
+where the ``b_j`` are *base generators* (coordinates, parameters, values of
+arbitrary functions and their partial derivatives, ``cos`` of an angle,
+``exp``, ``log`` and symbolic powers, the constant ``pi``), held in one
+``fmpz_mpoly`` context, and the ``s_i`` are *square-root generators* with
+``s_i**2 = R_i`` for a radicand ``R_i`` in ``Q(b)`` (``sqrt(...)``, half
+integer powers, and ``sin`` of an angle, for which ``s**2 = 1 - cos**2``).
+
+An element is kept as ``sum_m c_m * s^m / d``: ``m`` runs over bit masks of
+square-root generators, ``c_m`` and ``d`` are integer polynomials in the base
+generators, ``d`` is free of square roots (denominators are rationalised) and
+the fraction is reduced by gcd. Products reduce ``s_i**2`` to ``R_i`` at
+once, so the representation never grows in the square roots.
+
+Each generator carries its derivation rule for every chart coordinate
+(``d/dtheta cos(theta) = -sin(theta)``, ``d/dt a = a_t``, ``d exp(w) = exp(w) dw``,
+``d sqrt(R) = sqrt(R) dR / (2R)``...), so derivatives are exact and stay in K.
+
+Soundness: generators are treated as independent indeterminates, except for
+the square-root relations, which are applied. An element that reduces to zero
+is therefore identically zero. A non-zero result is only a definite non-zero
+when the chart uses no generator with a hidden relation (see
+:attr:`Field.complete`); otherwise callers must not call it a failure.
+
+Anything else (``Abs``, ``sign``, ``LambertW``, inverse trigonometric
+functions, cube roots, exponents depending on coordinates) raises
+:class:`Unsupported`, and the caller falls back to the pure sympy path.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from contextlib import contextmanager
+from fractions import Fraction
+from itertools import combinations_with_replacement
+
+import flint
+import sympy as sp
+
+ARB_BITS = 320  # working precision of the interval-arithmetic sampling fallback
+
+
+class Unsupported(Exception):
+    """The expression cannot be represented on the flint fast path."""
+
+
+class BudgetExceeded(Exception):
+    """The time budget of the running proof is spent."""
+
+
+@contextmanager
+def arb_precision(bits: int = ARB_BITS):
+    old = flint.ctx.prec
+    flint.ctx.prec = bits
+    try:
+        yield
+    finally:
+        flint.ctx.prec = old
+
+
+# ---------------------------------------------------------------------------
+# generators
+
+
+class BaseGen:
+    """A base generator: one variable of the polynomial context."""
+
+    __slots__ = ("kind", "sym", "key", "index", "data", "label")
+
+    def __init__(self, kind, sym, key, data=None, label=""):
+        self.kind = kind  # coord | param | const | func | exp | pow | cos | log
+        self.sym = sym  # the sympy expression it stands for
+        self.key = key
+        self.index = -1
+        self.data = data or {}
+        self.label = label or str(sym)
+
+
+class SqrtGen:
+    """A square-root generator ``s`` with ``s**2 = num/den`` (both base polynomials)."""
+
+    __slots__ = ("bit", "num", "den", "sym", "trig", "radicand")
+
+    def __init__(self, bit, num, den, sym, trig=None):
+        self.bit = bit
+        self.num = num
+        self.den = den
+        self.sym = sym  # sympy expression (sqrt(R) or sin(w))
+        self.trig = trig  # the BaseGen of the matching cos, for sin generators
+        self.radicand = None  # Elem, set after creation
+
+
+# ---------------------------------------------------------------------------
+# elements
+
+
+class Elem:
+    """``sum_m c[m] * s^m / d`` (see the module docstring). Immutable."""
+
+    __slots__ = ("F", "c", "d", "_q")
+
+    def __init__(self, F, c, d):
+        self.F = F
+        self.c = c  # dict mask -> non-zero fmpz_mpoly
+        self.d = d  # fmpz_mpoly, positive leading coefficient
+        self._q = None  # cached fmpq_mpoly copies for evaluation
+
+    # -- predicates -------------------------------------------------------
+    def is_zero(self) -> bool:
+        return not self.c
+
+    def is_const(self) -> bool:
+        return not self.c or (set(self.c) == {0} and self.c[0].is_constant() and self.d.is_constant())
+
+    def is_plain(self) -> bool:
+        """No square-root generator occurs."""
+        return not self.c or (len(self.c) == 1 and 0 in self.c)
+
+    def num0(self):
+        return self.c.get(0, self.F.pzero)
+
+    def __repr__(self):
+        return f"Elem({self.F.to_sympy(self)})"
+
+    # -- arithmetic -------------------------------------------------------
+    def _coerce(self, other):
+        if isinstance(other, Elem):
+            return other
+        return self.F.const(other)
+
+    def __neg__(self):
+        return Elem(self.F, {m: -p for m, p in self.c.items()}, self.d)
+
+    def __add__(self, other):
+        other = self._coerce(other)
+        if not self.c:
+            return other
+        if not other.c:
+            return self
+        F = self.F
+        F.tick()
+        a, b = self, other
+        if a.d == b.d:
+            return F.make(_addc(a.c, b.c), a.d)
+        if a.d.is_one():
+            return F.make_reduced(_addc(_scalec(a.c, b.d), b.c), b.d)
+        if b.d.is_one():
+            return F.make_reduced(_addc(a.c, _scalec(b.c, a.d)), a.d)
+        g = a.d.gcd(b.d)
+        if g.is_one():
+            return F.make_reduced(_addc(_scalec(a.c, b.d), _scalec(b.c, a.d)), a.d * b.d)
+        da = a.d / g
+        db = b.d / g
+        num = _addc(_scalec(a.c, db), _scalec(b.c, da))
+        if not num:
+            return F.zero
+        h = g
+        for p in num.values():
+            h = h.gcd(p)
+            if h.is_one():
+                break
+        if h.is_one():
+            return F.make_reduced(num, a.d * db)
+        return F.make_reduced({m: p / h for m, p in num.items()}, (a.d / h) * db)
+
+    __radd__ = __add__
+
+    def __sub__(self, other):
+        return self + (-self._coerce(other))
+
+    def __rsub__(self, other):
+        return self._coerce(other) + (-self)
+
+    def __mul__(self, other):
+        other = self._coerce(other)
+        F = self.F
+        if not self.c or not other.c:
+            return F.zero
+        F.tick()
+        a, b = self, other
+        if len(a.c) == 1 and len(b.c) == 1 and 0 in a.c and 0 in b.c:
+            an, bn = a.c[0], b.c[0]
+            g1 = an.gcd(b.d) if not b.d.is_one() else None
+            g2 = bn.gcd(a.d) if not a.d.is_one() else None
+            if g1 is not None and not g1.is_one():
+                an = an / g1
+                bd = b.d / g1
+            else:
+                bd = b.d
+            if g2 is not None and not g2.is_one():
+                bn = bn / g2
+                ad = a.d / g2
+            else:
+                ad = a.d
+            return F.make_reduced({0: an * bn}, ad * bd)
+        return F.make(*F.mulc(a.c, b.c, a.d * b.d))
+
+    __rmul__ = __mul__
+
+    def inv(self):
+        F = self.F
+        if not self.c:
+            raise ZeroDivisionError("division by an element that is identically zero")
+        if self.is_plain():
+            return F.make_reduced({0: self.d}, self.c[0])
+        # rationalise: multiply by the conjugates until the norm is free of square roots
+        n = Elem(F, dict(self.c), F.pone)
+        mult = F.one
+        bits = 0
+        for m in n.c:
+            bits |= m
+        for i in range(len(F.sqrts)):
+            bit = 1 << i
+            if not bits & bit:
+                continue
+            if not any(m & bit for m in n.c):
+                continue
+            conj = Elem(F, {m: (-p if m & bit else p) for m, p in n.c.items()}, n.d)
+            mult = mult * conj
+            n = n * conj
+        if not n.is_plain():  # pragma: no cover - only with dependent radicands
+            raise Unsupported("could not rationalise a denominator")
+        return Elem(F, {0: self.d}, F.pone) * mult * n.inv()
+
+    def __truediv__(self, other):
+        other = self._coerce(other)
+        return self * other.inv()
+
+    def __rtruediv__(self, other):
+        return self._coerce(other) * self.inv()
+
+    def __pow__(self, k: int):
+        if not isinstance(k, int):
+            raise TypeError("only integer powers of elements")
+        if k < 0:
+            return self.inv() ** (-k)
+        out = self.F.one
+        base = self
+        while k:
+            if k & 1:
+                out = out * base
+            k >>= 1
+            if k:
+                base = base * base
+        return out
+
+    # -- calculus ---------------------------------------------------------
+    def diff(self, i: int) -> Elem:
+        """Derivative with respect to chart coordinate number ``i``."""
+        return self.F.diff(self, i)
+
+    # -- evaluation -------------------------------------------------------
+    def _needs(self):
+        """(base generator indices, square-root bits) this element uses."""
+        used = set()
+        bits = 0
+        for m, p in self.c.items():
+            bits |= m
+            used.update(j for j, e in enumerate(p.degrees()) if e)
+        used.update(j for j, e in enumerate(self.d.degrees()) if e)
+        return used, bits
+
+    def evaluate(self, pt):
+        """Value at a :class:`Point`: ``fmpq`` when every generator it uses has
+        an exact value there, else an ``arb`` ball."""
+        F = self.F
+        if self._q is None:
+            used, bits = self._needs()
+            self._q = [used, bits, None]
+        used, bits, qpolys = self._q
+        if not self.c:
+            return flint.fmpq(0)
+        exact = all(pt.base[j] is not None for j in used)
+        if exact:
+            i = 0
+            m = bits
+            while m:
+                if m & 1 and pt.sqrt[i] is None:
+                    exact = False
+                    break
+                m >>= 1
+                i += 1
+        if exact:
+            if qpolys is None:
+                qpolys = ({m: F.to_q(p) for m, p in self.c.items()}, F.to_q(self.d))
+                self._q[2] = qpolys
+            qc, qd = qpolys
+            vals = [v if v is not None else flint.fmpq(0) for v in pt.base]
+            den = qd(*vals)
+            if den == 0:
+                raise ZeroDivisionError("denominator vanishes at the point")
+            total = flint.fmpq(0)
+            for m, p in qc.items():
+                v = p(*vals)
+                if m:
+                    v = v * pt.sqrt_product(m, True)
+                total += v
+            return total / den
+        with arb_precision():
+            den = F.eval_arb(self.d, pt.abase)
+            if den.contains(0):
+                raise ZeroDivisionError("denominator not separated from zero at the point")
+            total = flint.arb(0)
+            for m, p in self.c.items():
+                v = F.eval_arb(p, pt.abase)
+                if m:
+                    v = v * pt.sqrt_product(m, False)
+                total += v
+            return total / den
+
+
+def _addc(a, b):
+    out = dict(a)
+    for m, p in b.items():
+        q = out.get(m)
+        if q is None:
+            out[m] = p
+        else:
+            s = q + p
+            if s.is_zero():
+                del out[m]
+            else:
+                out[m] = s
+    return out
+
+
+def _scalec(c, f):
+    return {m: p * f for m, p in c.items()}
+
+
+# ---------------------------------------------------------------------------
+# the field
+
+
+class Point:
+    """Values of the generators at one point: exact (``fmpq`` or None) and interval."""
+
+    __slots__ = ("base", "sqrt", "abase", "asqrt", "_prod")
+
+    def __init__(self, base, sqrt, abase, asqrt):
+        self.base = base  # fmpq or None (not rational) per base generator
+        self.sqrt = sqrt  # fmpq or None per square-root generator
+        self.abase = abase  # arb per base generator
+        self.asqrt = asqrt  # arb per square-root generator
+        self._prod = {}
+
+    def sqrt_product(self, mask, exact):
+        key = (mask, exact)
+        v = self._prod.get(key)
+        if v is None:
+            vals = self.sqrt if exact else self.asqrt
+            v = flint.fmpq(1) if exact else flint.arb(1)
+            i = 0
+            m = mask
+            while m:
+                if m & 1:
+                    v = v * vals[i]
+                m >>= 1
+                i += 1
+            self._prod[key] = v
+        return v
+
+
+_HYPER = (sp.sinh, sp.cosh, sp.tanh, sp.coth, sp.sech, sp.csch)
+_TRIG = (sp.sin, sp.cos, sp.tan, sp.cot, sp.sec, sp.csc)
+
+
+def prepare(expr):
+    """Rewrite hyperbolic functions as exponentials and tan/cot/sec/csc via sin, cos."""
+    expr = sp.sympify(expr)
+    if expr.has(*_HYPER):
+        expr = expr.replace(lambda e: isinstance(e, _HYPER), lambda e: e.rewrite(sp.exp))
+    if expr.has(sp.exp) and expr.has(sp.log):
+        # exp(c*(t + log(w))) -> exp(c t) * w**c, so that exp and log do not stay independent generators
+        expr = expr.replace(
+            lambda e: isinstance(e, sp.exp), lambda e: sp.expand_power_exp(sp.exp(sp.expand(e.args[0])))
+        )
+    if expr.has(sp.tan, sp.cot, sp.sec, sp.csc):
+        expr = expr.replace(lambda e: isinstance(e, (sp.tan, sp.cot, sp.sec, sp.csc)), _trig_via_sin_cos)
+    return expr
+
+
+def _trig_via_sin_cos(e):
+    w = e.args[0]
+    if isinstance(e, sp.tan):
+        return sp.sin(w) / sp.cos(w)
+    if isinstance(e, sp.cot):
+        return sp.cos(w) / sp.sin(w)
+    if isinstance(e, sp.sec):
+        return 1 / sp.cos(w)
+    return 1 / sp.sin(w)
+
+
+def _split_linear(e):
+    """``e`` as ``c0 + sum c_k m_k`` with rational ``c`` (list of (c, m))."""
+    c0 = sp.Integer(0)
+    terms = []
+    for t in sp.Add.make_args(sp.expand(e)):
+        c, m = t.as_coeff_Mul()
+        if m == 1 or m.is_number and m.is_Rational:
+            c0 += t
+        elif not c.is_Rational:
+            raise Unsupported(f"non-rational coefficient in {e}")
+        else:
+            terms.append((sp.Rational(c), m))
+    if not c0.is_Rational:
+        raise Unsupported(f"non-rational constant in {e}")
+    return sp.Rational(c0), terms
+
+
+class Field:
+    """The exact differential field of a set of chart expressions.
+
+    ``coords``: chart coordinates (derivations); ``params``: parameters;
+    ``exprs``: every sympy expression that will be converted with
+    :meth:`element`; ``functions``: declared applied functions ``a(t)``;
+    ``extra_order``: how many derivative orders beyond those occurring to
+    provide for arbitrary functions.
+    """
+
+    def __init__(self, coords, params, exprs, functions=(), extra_order=3):
+        self.coords = tuple(coords)
+        self.params = tuple(params)
+        self.coord_index = {c: i for i, c in enumerate(self.coords)}
+        self.deadline = None
+        self.ops = 0
+        self._gens: dict = {}  # key -> BaseGen (insertion order = dependency order)
+        self._funcs: dict = {}  # function class -> (args, max order)
+        self._sqrt_keys: list = []  # sympy radicands met while scanning
+        self._trig: dict = {}  # angle atom -> lcm of denominators
+        self._pending_trig = []
+        prepared = [prepare(e) for e in exprs]
+        for f in functions:
+            self._scan_func(f, 0)
+        for e in prepared:
+            self._scan(e)
+        self._finish_scan(extra_order)
+        self.base = list(self._gens.values())
+        for i, g in enumerate(self.base):
+            g.index = i
+        names = tuple(f"g{i}" for i in range(len(self.base))) or ("g0",)
+        self.ctx = flint.fmpz_mpoly_ctx.get(names)
+        self.qctx = flint.fmpq_mpoly_ctx.get(names)
+        self.pone = self.ctx.constant(1)
+        self.pzero = self.ctx.constant(0)
+        self.zero = Elem(self, {}, self.pone)
+        self.one = Elem(self, {0: self.pone}, self.pone)
+        self.sqrts: list[SqrtGen] = []
+        self._sqrt_by_key: dict = {}
+        self._memo: dict = {}
+        self._dgen: dict = {}
+        self._dlogsqrt: dict = {}
+        self._arb_cache: dict = {}
+        # square roots: sin generators first (their radicand is 1 - cos^2)
+        for g in self.base:
+            if g.kind == "cos":
+                cpoly = self.ctx.gens()[g.index] if self.base else None
+                s = self._new_sqrt(self.pone - cpoly * cpoly, self.pone, sp.sin(g.data["angle"]), trig=g)
+                g.data["sin"] = s
+        for e in self._sqrt_keys:
+            self._sqrt_of(self.element(e))
+        # pi and e are transcendental, so treating them as free generators loses nothing
+        self.complete = all(g.kind in ("coord", "param", "func", "cos", "const") for g in self.base) and all(
+            s.trig is not None for s in self.sqrts
+        )
+
+    # -- scanning (phase 1: which generators exist) ------------------------
+    def _gen(self, key, kind, sym, data=None, label=""):
+        g = self._gens.get(key)
+        if g is None:
+            g = BaseGen(kind, sym, key, data, label)
+            self._gens[key] = g
+        return g
+
+    def _scan_func(self, f, order):
+        if not isinstance(f, sp.core.function.AppliedUndef):
+            raise Unsupported(f"not a function application: {f}")
+        for a in f.args:
+            if a not in self.coord_index:
+                raise Unsupported(f"function {f} has an argument that is not a coordinate")
+        if len(set(f.args)) != len(f.args):
+            raise Unsupported(f"repeated argument in {f}")
+        old = self._funcs.get(f.func)
+        if old is not None and old[0] != f.args:
+            raise Unsupported(f"function {f.func} used with different arguments")
+        self._funcs[f.func] = (f.args, max(order, old[1] if old else 0))
+
+    def _scan(self, e):
+        if e.is_Rational:
+            return
+        if e.is_Symbol:
+            if e in self.coord_index:
+                self._gen(("coord", e), "coord", e)
+            else:
+                self._gen(("param", e), "param", e)
+            return
+        if e is sp.pi or e is sp.E:
+            self._gen(("const", e), "const", e)
+            return
+        if e.is_Number:
+            raise Unsupported(f"inexact number {e}")
+        if isinstance(e, sp.core.function.AppliedUndef):
+            self._scan_func(e, 0)
+            return
+        if isinstance(e, sp.Derivative):
+            f = e.expr
+            if not isinstance(f, sp.core.function.AppliedUndef):
+                raise Unsupported(f"derivative of a non-function: {e}")
+            self._scan_func(f, sum(n for _, n in e.variable_count))
+            return
+        if isinstance(e, (sp.Add, sp.Mul)):
+            for a in e.args:
+                self._scan(a)
+            return
+        if isinstance(e, sp.Pow):
+            b, x = e.args
+            if x.is_Integer:
+                self._scan(b)
+                return
+            if x.is_Rational and x.q == 2:
+                self._scan(b)
+                if b not in self._sqrt_keys:
+                    self._sqrt_keys.append(b)
+                return
+            if x.is_Rational:
+                # b**(p/q): a root generator rho = b**(1/q) with d rho = rho db / (q b); rho**q = b is not applied
+                self._scan(b)
+                self._gen(
+                    ("pow", b, sp.Rational(1, x.q)),
+                    "pow",
+                    b ** sp.Rational(1, x.q),
+                    {"base": b, "exp": sp.Rational(1, x.q)},
+                )
+                return
+            if b is sp.E:
+                self._scan(sp.exp(x))
+                return
+            self._scan(b)
+            c0, terms = _split_linear(x)
+            if c0.q not in (1, 2):
+                raise Unsupported(f"power {e}")
+            if c0.q == 2 and b not in self._sqrt_keys:
+                self._sqrt_keys.append(b)
+            for c, m in terms:
+                if m.free_symbols & set(self.coords) or m.has(sp.core.function.AppliedUndef):
+                    raise Unsupported(f"exponent depending on a coordinate: {e}")
+                self._scan(m)
+                self._gen(("pow", b, m / c.q), "pow", b ** (m / c.q), {"base": b, "exp": m / c.q})
+            return
+        if isinstance(e, sp.exp):
+            c0, terms = _split_linear(e.args[0])
+            if c0 != 0:
+                self._gen(("const", sp.E), "const", sp.E)
+            for c, m in terms:
+                self._scan(m)
+                self._gen(("exp", m / c.q), "exp", sp.exp(m / c.q), {"arg": m / c.q})
+            return
+        if isinstance(e, sp.log):
+            w = e.args[0]
+            self._scan(w)
+            self._gen(("log", w), "log", e, {"arg": w})
+            return
+        if isinstance(e, (sp.sin, sp.cos)):
+            w = e.args[0]
+            c, m = sp.expand(w).as_coeff_Mul()
+            if not c.is_Rational or c == 0:
+                raise Unsupported(f"trigonometric argument {w}")
+            if isinstance(m, sp.Add):
+                # a sum is its own angle: no addition theorem is applied
+                c, m = sp.Integer(1), sp.expand(w)
+            if m not in self.coord_index:
+                self._scan(m)
+            self._trig[m] = math.lcm(self._trig.get(m, 1), sp.Rational(c).q)
+            self._pending_trig.append(m)
+            return
+        raise Unsupported(f"{type(e).__name__} is not on the fast path: {e}")
+
+    def _finish_scan(self, extra_order):
+        for m, q in self._trig.items():
+            angle = m / q
+            self._gen(("cos", m), "cos", sp.cos(angle), {"atom": m, "q": q, "angle": angle})
+        for func, (args, order) in self._funcs.items():
+            top = order + extra_order
+            for k in range(top + 1):
+                for combo in combinations_with_replacement(range(len(args)), k):
+                    alpha = tuple(combo.count(j) for j in range(len(args)))
+                    f = func(*args)
+                    sym = f
+                    if k:
+                        sym = sp.Derivative(f, *[(args[j], n) for j, n in enumerate(alpha) if n])
+                    label = func.__name__ + ("_" + "".join(str(args[j]) * n for j, n in enumerate(alpha)) if k else "")
+                    data = {"func": func, "args": args, "alpha": alpha, "top": top}
+                    self._gen(("func", func, alpha), "func", sym, data, label)
+
+    # -- elements ------------------------------------------------------------
+    def tick(self):
+        self.ops += 1
+        if self.deadline is not None and not self.ops & 63 and time.monotonic() > self.deadline:
+            raise BudgetExceeded()
+
+    def const(self, v) -> Elem:
+        if isinstance(v, Elem):
+            return v
+        if isinstance(v, (int, flint.fmpz)):
+            v = flint.fmpq(v)
+        elif isinstance(v, Fraction):
+            v = flint.fmpq(v.numerator, v.denominator)
+        elif isinstance(v, sp.Rational):
+            v = flint.fmpq(int(v.p), int(v.q))
+        if not isinstance(v, flint.fmpq):
+            raise TypeError(f"not a rational constant: {v!r}")
+        if v == 0:
+            return self.zero
+        return Elem(self, {0: self.ctx.constant(v.p)}, self.ctx.constant(v.q))
+
+    def gen_elem(self, g: BaseGen) -> Elem:
+        return Elem(self, {0: self.ctx.gens()[g.index]}, self.pone)
+
+    def make(self, c, d) -> Elem:
+        """Reduce ``c/d`` by the gcd and normalise the sign of ``d``."""
+        c = {m: p for m, p in c.items() if not p.is_zero()}
+        if not c:
+            return self.zero
+        if not d.is_one():
+            g = d
+            for p in c.values():
+                g = g.gcd(p)
+                if g.is_one():
+                    break
+            if not g.is_one():
+                c = {m: p / g for m, p in c.items()}
+                d = d / g
+        return self.make_reduced(c, d)
+
+    def make_reduced(self, c, d) -> Elem:
+        if d.leading_coefficient() < 0:
+            c = {m: -p for m, p in c.items()}
+            d = -d
+        if d.is_zero():
+            raise ZeroDivisionError("zero denominator")
+        return Elem(self, c, d)
+
+    def mulc(self, ac, bc, den):
+        """Product of two component dicts; returns (components, denominator)."""
+        overl = 0
+        for m1 in ac:
+            for m2 in bc:
+                overl |= m1 & m2
+        extra = self.pone
+        out: dict = {}
+        for m1, p1 in ac.items():
+            for m2, p2 in bc.items():
+                o = m1 & m2
+                f = p1 * p2
+                i = 0
+                oo = overl
+                while oo:
+                    if oo & 1:
+                        s = self.sqrts[i]
+                        if o >> i & 1:
+                            f = f * s.num
+                        elif not s.den.is_one():
+                            f = f * s.den
+                    oo >>= 1
+                    i += 1
+                m = m1 ^ m2
+                q = out.get(m)
+                out[m] = f if q is None else q + f
+        i = 0
+        oo = overl
+        while oo:
+            if oo & 1 and not self.sqrts[i].den.is_one():
+                extra = extra * self.sqrts[i].den
+            oo >>= 1
+            i += 1
+        return out, den * extra
+
+    def _new_sqrt(self, num, den, sym, trig=None) -> SqrtGen:
+        if len(self.sqrts) >= 24:
+            raise Unsupported("too many square roots")
+        s = SqrtGen(len(self.sqrts), num, den, sym, trig)
+        self.sqrts.append(s)
+        s.radicand = self.make({0: num}, den)
+        return s
+
+    def _sqrt_of(self, R: Elem) -> Elem:
+        """``sqrt(R)`` as an element (principal root), creating the generator if new."""
+        if not R.c:
+            return self.zero
+        if not R.is_plain():
+            raise Unsupported("square root of an expression with square roots")
+        num, den = R.c[0], R.d
+        # canonical radicand: sqrt((cn pn)/(cd pd)) = (s/cd) sqrt(k pn / pd) with cn cd = s^2 k, so that
+        # sqrt(Lambda/3) and sqrt(3 Lambda) share one generator
+        cn, cd = _content(num), _content(den)
+        s, k = _square_split(int(cn) * int(cd))
+        num = (num / self.ctx.constant(cn)) * k
+        den = den / self.ctx.constant(cd)
+        factor = flint.fmpq(s, int(cd))
+        if num.is_constant() and den.is_constant():
+            # a rational constant: exact when it is a square
+            v = flint.fmpq(int(num.leading_coefficient()), int(den.leading_coefficient()))
+            if v > 0 and v.p.isqrt() ** 2 == v.p and v.q.isqrt() ** 2 == v.q:
+                return self.const(factor * flint.fmpq(v.p.isqrt(), v.q.isqrt()))
+        key = (str(num), str(den))
+        s = self._sqrt_by_key.get(key)
+        if s is None:
+            Rsym = self.poly_to_sympy(num) / self.poly_to_sympy(den)
+            s = self._new_sqrt(num, den, sp.sqrt(Rsym))
+            self._sqrt_by_key[key] = s
+        return self.const(factor) * Elem(self, {1 << s.bit: self.pone}, self.pone)
+
+    def element(self, expr) -> Elem:
+        """Convert a sympy expression (whose atoms were scanned) to an element."""
+        expr = prepare(expr)
+        return self._el(expr)
+
+    def _el(self, e) -> Elem:
+        r = self._memo.get(e)
+        if r is not None:
+            return r
+        r = self._el_new(e)
+        self._memo[e] = r
+        return r
+
+    def _g(self, key) -> Elem:
+        g = self._gens.get(key)
+        if g is None:
+            raise Unsupported(f"expression outside this field: {key}")
+        return self.gen_elem(g)
+
+    def _el_new(self, e) -> Elem:
+        if e.is_Rational:
+            return self.const(e)
+        if e.is_Symbol:
+            return self._g(("coord", e) if e in self.coord_index else ("param", e))
+        if e is sp.pi or e is sp.E:
+            return self._g(("const", e))
+        if isinstance(e, sp.core.function.AppliedUndef):
+            return self._g(("func", e.func, (0,) * len(e.args)))
+        if isinstance(e, sp.Derivative):
+            f = e.expr
+            alpha = [0] * len(f.args)
+            for v, n in e.variable_count:
+                if v not in f.args:
+                    return self.zero
+                alpha[f.args.index(v)] += n
+            return self._g(("func", f.func, tuple(alpha)))
+        if isinstance(e, sp.Add):
+            out = self.zero
+            for a in e.args:
+                out = out + self._el(a)
+            return out
+        if isinstance(e, sp.Mul):
+            out = self.one
+            for a in e.args:
+                out = out * self._el(a)
+            return out
+        if isinstance(e, sp.Pow):
+            b, x = e.args
+            if x.is_Integer:
+                return self._el(b) ** int(x)
+            if x.is_Rational and x.q == 2:
+                return self._sqrt_of(self._el(b)) ** int(x.p)
+            if x.is_Rational:
+                return self._g(("pow", b, sp.Rational(1, x.q))) ** int(x.p)
+            if b is sp.E:
+                return self._el(sp.exp(x))
+            c0, terms = _split_linear(x)
+            out = self.one
+            if c0 != 0:
+                bb = self._el(b)
+                out = bb ** int(c0.p // 1) if c0.q == 1 else self._sqrt_of(bb) ** int(c0.p)
+            for c, m in terms:
+                out = out * self._g(("pow", b, m / c.q)) ** int(c * c.q)
+            return out
+        if isinstance(e, sp.exp):
+            c0, terms = _split_linear(e.args[0])
+            out = self.one
+            if c0 != 0:
+                if not c0.is_Integer:
+                    raise Unsupported(f"exp of a non-integer constant: {e}")
+                out = self._g(("const", sp.E)) ** int(c0)
+            for c, m in terms:
+                out = out * self._g(("exp", m / c.q)) ** int(c * c.q)
+            return out
+        if isinstance(e, sp.log):
+            return self._g(("log", e.args[0]))
+        if isinstance(e, (sp.sin, sp.cos)):
+            w = e.args[0]
+            c, m = sp.expand(w).as_coeff_Mul()
+            if isinstance(m, sp.Add):
+                c, m = sp.Integer(1), sp.expand(w)
+            g = self._gens[("cos", m)]
+            k = int(sp.Rational(c) * g.data["q"])  # multiple of the base angle
+            C = self.gen_elem(g)
+            S = Elem(self, {1 << g.data["sin"].bit: self.pone}, self.pone)
+            sign = 1
+            if k < 0:
+                k = -k
+                sign = -1
+            if isinstance(e, sp.cos):
+                return _cheb_T(self, C, k)
+            return S * _cheb_U(self, C, k - 1) * sign if k else self.zero
+        raise Unsupported(f"{type(e).__name__}: {e}")
+
+    # -- derivatives ---------------------------------------------------------
+    def dgen(self, j: int, i: int):
+        """Derivative of base generator ``j`` along coordinate ``i`` (Elem or None)."""
+        key = (j, i)
+        if key in self._dgen:
+            return self._dgen[key]
+        g = self.base[j]
+        x = self.coords[i]
+        r = None
+        if g.kind == "coord":
+            r = self.one if g.sym == x else None
+        elif g.kind in ("param", "const"):
+            r = None
+        elif g.kind == "func":
+            args, alpha = g.data["args"], g.data["alpha"]
+            if x in args:
+                a = list(alpha)
+                a[args.index(x)] += 1
+                h = self._gens.get(("func", g.data["func"], tuple(a)))
+                if h is None:
+                    raise Unsupported(f"derivative order of {g.data['func'].__name__} beyond {g.data['top']}")
+                r = self.gen_elem(h)
+        elif g.kind == "exp":
+            dw = self._el(g.data["arg"]).diff(i)
+            r = None if dw.is_zero() else self.gen_elem(g) * dw
+        elif g.kind == "pow":
+            b = self._el(g.data["base"])
+            db = b.diff(i)
+            r = None if db.is_zero() else self.gen_elem(g) * self._el(g.data["exp"]) * db / b
+        elif g.kind == "log":
+            w = self._el(g.data["arg"])
+            dw = w.diff(i)
+            r = None if dw.is_zero() else dw / w
+        elif g.kind == "cos":
+            atom = g.data["atom"]
+            if atom in self.coord_index:
+                dw = self.const(flint.fmpq(1, g.data["q"])) if atom == x else self.zero
+            else:
+                dw = self._el(g.data["angle"]).diff(i)
+            if not dw.is_zero():
+                S = Elem(self, {1 << g.data["sin"].bit: self.pone}, self.pone)
+                r = -(S * dw)
+        if r is not None and r.is_zero():
+            r = None
+        self._dgen[key] = r
+        return r
+
+    def dlogsqrt(self, k: int, i: int):
+        """``d s_k / s_k`` along coordinate ``i``: ``dR / (2 R)`` (Elem or None)."""
+        key = (k, i)
+        if key in self._dlogsqrt:
+            return self._dlogsqrt[key]
+        s = self.sqrts[k]
+        if s.trig is not None:
+            # s = sin(w), c = cos(w): ds/s = c dw / s = -c dc / s^2 = -c dc / (1 - c^2)
+            C = self.gen_elem(s.trig)
+            dc = self.dgen(s.trig.index, i)
+            r = None if dc is None else -(C * dc) / s.radicand
+        else:
+            dR = s.radicand.diff(i)
+            r = None if dR.is_zero() else dR / (s.radicand * 2)
+        self._dlogsqrt[key] = r
+        return r
+
+    def dpoly(self, p, i: int) -> Elem:
+        """Derivative of a base polynomial along coordinate ``i``."""
+        degs = p.degrees()
+        acc_poly = None
+        acc = None
+        for j, dj in enumerate(degs):
+            if not dj:
+                continue
+            r = self.dgen(j, i)
+            if r is None:
+                continue
+            pj = p.derivative(j)
+            if r.is_plain() and r.d.is_one():
+                t = pj * r.c[0]
+                acc_poly = t if acc_poly is None else acc_poly + t
+            else:
+                t = Elem(self, {0: pj}, self.pone) * r
+                acc = t if acc is None else acc + t
+        out = self.zero
+        if acc_poly is not None and not acc_poly.is_zero():
+            out = Elem(self, {0: acc_poly}, self.pone)
+        if acc is not None:
+            out = out + acc
+        return out
+
+    def diff(self, a: Elem, i: int) -> Elem:
+        if not a.c:
+            return self.zero
+        self.tick()
+        # d(N/d) = dN/d - N dd/d^2, N = sum c_m s^m
+        dn = self.zero
+        for m, p in a.c.items():
+            sm = Elem(self, {m: self.pone}, self.pone)
+            term = self.dpoly(p, i)
+            if m:
+                lg = self.zero
+                k = 0
+                mm = m
+                while mm:
+                    if mm & 1:
+                        r = self.dlogsqrt(k, i)
+                        if r is not None:
+                            lg = lg + r
+                    mm >>= 1
+                    k += 1
+                if not lg.is_zero():
+                    term = term + Elem(self, {0: p}, self.pone) * lg
+                term = term * sm
+            dn = dn + term
+        if a.d.is_constant():
+            return dn / Elem(self, {0: a.d}, self.pone) if not a.d.is_one() else dn
+        dd = self.dpoly(a.d, i)
+        if dd.is_zero():
+            return dn * Elem(self, {0: self.pone}, a.d)
+        if a.is_plain() and dn.is_plain() and dd.is_plain() and dn.d.is_one() and dd.d.is_one():
+            n = a.c[0]
+            num = dn.num0() * a.d - n * dd.num0()
+            return self.make({0: num}, a.d * a.d)
+        inv_d = Elem(self, {0: self.pone}, a.d)
+        return dn * inv_d - Elem(self, dict(a.c), self.pone) * dd * inv_d * inv_d
+
+    # -- conversions ---------------------------------------------------------
+    def to_q(self, p):
+        return self.qctx.from_dict(p.to_dict())
+
+    def eval_arb(self, p, base):
+        total = flint.arb(0)
+        for exps, coeff in p.terms():
+            t = flint.arb(coeff)
+            for j, e in enumerate(exps):
+                if e:
+                    t = t * base[j] ** e
+            total += t
+        return total
+
+    def gen_syms(self):
+        return [g.sym for g in self.base]
+
+    def poly_to_sympy(self, p):
+        syms = self.gen_syms()
+        terms = []
+        for exps, coeff in p.terms():
+            t = sp.Integer(int(coeff))
+            for j, e in enumerate(exps):
+                if e:
+                    t = t * syms[j] ** e
+            terms.append(t)
+        return sp.Add(*terms)
+
+    def _factored(self, p):
+        if p.is_constant():
+            return sp.Integer(int(p.leading_coefficient()))
+        c, facs = p.factor()
+        out = sp.Integer(int(c))
+        facs = [[f, e] for f, e in facs]
+        # (cos w - 1)(cos w + 1) = -sin(w)**2
+        for g in self.base:
+            if g.kind != "cos":
+                continue
+            C = self.ctx.gens()[g.index]
+            lo = next((fe for fe in facs if fe[0] == C - 1), None)
+            hi = next((fe for fe in facs if fe[0] == C + 1), None)
+            if lo is not None and hi is not None:
+                m = min(lo[1], hi[1])
+                out = out * (-1) ** m * g.data["sin"].sym ** (2 * m)
+                lo[1] -= m
+                hi[1] -= m
+        facs = [(f, e) for f, e in facs if e]
+        for f, e in facs:
+            out = out * self.poly_to_sympy(f) ** e
+        return out
+
+    def to_sympy(self, a: Elem, factor: bool = True):
+        """The element as a sympy expression in the chart's own symbols."""
+        if not a.c:
+            return sp.Integer(0)
+        conv = self._factored if factor else self.poly_to_sympy
+        num = sp.Integer(0)
+        for m, p in a.c.items():
+            t = conv(p)
+            k = 0
+            mm = m
+            while mm:
+                if mm & 1:
+                    t = t * self.sqrts[k].sym
+                mm >>= 1
+                k += 1
+            num = num + t
+        return num / conv(a.d)
+
+    # -- points --------------------------------------------------------------
+    def point(self, values: dict, angles: dict | None = None) -> Point:
+        """Generator values at a point.
+
+        ``values``: sympy symbol (coordinate, parameter) or function generator
+        key ``(func, alpha)`` -> rational (Fraction / fmpq / int), or an
+        ``arb`` for a coordinate whose value is not rational (an angle that
+        also occurs outside trigonometric functions). ``angles``: angle atom ->
+        rational ``u = tan(angle/2)``: exact cos and sin of that angle. The
+        remaining generators (pi, exp, log, other angles, square roots of
+        non-squares) get interval values; an element that needs none of them
+        still evaluates exactly. A negative radicand raises ValueError.
+        """
+        angles = angles or {}
+        nb, ns = len(self.base), len(self.sqrts)
+        ex: list = [None] * nb
+        sq: list = [None] * ns
+
+        def q(v):
+            if isinstance(v, Fraction):
+                return flint.fmpq(v.numerator, v.denominator)
+            if isinstance(v, sp.Rational):
+                return flint.fmpq(int(v.p), int(v.q))
+            if isinstance(v, (flint.fmpq, flint.arb)):
+                return v
+            return flint.fmpq(v)
+
+        with arb_precision():
+            ab: list = [None] * nb
+            asq: list = [None] * ns
+            pending = []
+            for g in self.base:
+                v = None
+                if g.kind in ("coord", "param"):
+                    if g.sym not in values:
+                        raise KeyError(f"no value for {g.sym}")
+                    v = q(values[g.sym])
+                elif g.kind == "func":
+                    v = q(values[(g.data["func"], g.data["alpha"])])
+                elif g.kind == "cos" and g.data["atom"] in angles:
+                    u = q(angles[g.data["atom"]])
+                    v = (1 - u * u) / (1 + u * u)
+                    s = 2 * u / (1 + u * u)
+                    sq[g.data["sin"].bit] = s
+                    asq[g.data["sin"].bit] = flint.arb(s)
+                else:
+                    pending.append(g)
+                    continue
+                if isinstance(v, flint.fmpq):
+                    ex[g.index] = v
+                ab[g.index] = flint.arb(v)
+            pt = Point(ex, sq, ab, asq)
+            pend = {g.index: g for g in pending}
+
+            def ensure(el):
+                used, bits = el._needs()
+                for j in used:
+                    ensure_base(j)
+                i = 0
+                while bits:
+                    if bits & 1:
+                        ensure_sqrt(i)
+                    bits >>= 1
+                    i += 1
+
+            def ensure_base(j):
+                if ab[j] is not None:
+                    return
+                g = pend[j]
+                if g.kind == "const":
+                    val = flint.arb.pi() if g.sym is sp.pi else flint.arb(1).exp()
+                elif g.kind in ("exp", "log"):
+                    w = self._el(g.data["arg"])
+                    ensure(w)
+                    w = flint.arb(w.evaluate(pt))
+                    val = w.exp() if g.kind == "exp" else w.log()
+                elif g.kind == "pow":
+                    b, e = self._el(g.data["base"]), self._el(g.data["exp"])
+                    ensure(b)
+                    ensure(e)
+                    val = (flint.arb(b.evaluate(pt)).log() * e.evaluate(pt)).exp()
+                else:  # cos of a general angle
+                    w = self._el(g.data["angle"])
+                    ensure(w)
+                    w = flint.arb(w.evaluate(pt))
+                    val = w.cos()
+                    asq[g.data["sin"].bit] = w.sin()
+                ab[j] = val
+
+            def ensure_sqrt(i):
+                if asq[i] is not None:
+                    return
+                s = self.sqrts[i]
+                if s.trig is not None:
+                    ensure_base(s.trig.index)
+                    return
+                ensure(s.radicand)
+                rv = s.radicand.evaluate(pt)
+                if isinstance(rv, flint.fmpq):
+                    if rv < 0:
+                        raise ValueError("negative radicand")
+                    if rv.p.isqrt() ** 2 == rv.p and rv.q.isqrt() ** 2 == rv.q:
+                        sq[i] = flint.fmpq(rv.p.isqrt(), rv.q.isqrt())
+                        asq[i] = flint.arb(sq[i])
+                        return
+                    rv = flint.arb(rv)
+                if rv < 0:
+                    raise ValueError("negative radicand")
+                if rv.contains(0):
+                    raise ValueError("radicand too close to zero")
+                asq[i] = rv.sqrt()
+
+            for g in pending:
+                ensure_base(g.index)
+            for i in range(len(self.sqrts)):
+                ensure_sqrt(i)
+        return pt
+
+
+def _content(p):
+    c = flint.fmpz(0)
+    for x in p.coeffs():
+        c = flint.fmpz(math.gcd(int(c), int(x)))
+        if c == 1:
+            break
+    return abs(c)
+
+
+def _square_split(c):
+    """``c = s**2 * r`` with ``s`` the product of small square factors (trial division)."""
+    c = int(c)
+    s = 1
+    if c == 0:
+        return 1, 0
+    for p in (2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37, 41, 43, 47):
+        while c % (p * p) == 0:
+            c //= p * p
+            s *= p
+    r = math.isqrt(c)
+    if r * r == c:
+        s *= r
+        c = 1
+    return s, c
+
+
+def _cheb_T(F, C, k):
+    if k == 0:
+        return F.one
+    t0, t1 = F.one, C
+    for _ in range(k - 1):
+        t0, t1 = t1, C * t1 * 2 - t0
+    return t1
+
+
+def _cheb_U(F, C, k):
+    if k < 0:
+        return F.zero
+    if k == 0:
+        return F.one
+    u0, u1 = F.one, C * 2
+    for _ in range(k - 1):
+        u0, u1 = u1, C * u1 * 2 - u0
+    return u1

@@ -1,0 +1,1087 @@
+"""The prepared chart shared by every verifier of one run.
+
+:class:`Geometry` takes a :class:`gravicat.chartspec.ChartSpec` and holds the
+metric, its inverse and its first and second derivatives, computed once, and
+the curvature (Christoffel symbols, Riemann, Ricci, Ricci scalar, Einstein,
+Kretschmann, Weyl square), computed lazily and cached.
+
+Two exact representations ("paths"):
+
+* ``"flint"``: every expression becomes an element of an exact differential
+  field of multivariate rational functions over python-flint
+  (:mod:`gravicat._ratfun`): coordinates, parameters, values of arbitrary
+  functions and their derivatives (``a``, ``a_t``, ``a_tt``...), ``cos`` of an
+  angle with ``sin`` as a square-root generator (``sin**2 = 1 - cos**2``,
+  ``d/dtheta cos = -sin``), other square roots, ``exp``, ``log`` and symbolic
+  powers, each with its derivation rule. Fractions are kept reduced by gcd,
+  so an identity is proved when its residual reduces to 0.
+* ``"sympy"``: the fallback when a chart uses something the field cannot
+  represent (``Abs``, ``sign``, inverse trigonometric functions, ``LambertW``,
+  cube roots...): sympy expressions with ``cancel`` as the normal form and
+  ``simplify`` as a last resort, run in a child process under the budget.
+  :attr:`Geometry.path` and :attr:`Geometry.fallback_reason` say which.
+
+Proof strategy (:meth:`Geometry.verify`): a residual function ``fn(X)``
+returning named components is first evaluated at random rational points of
+the domain (``X`` is then a :class:`PointData`: only g and its first and
+second derivatives come from the symbolic side, everything else is computed
+per point in exact rationals, or in interval arithmetic when a value is not
+rational, for instance with ``pi`` or ``exp``); any definite non-zero value is
+a failure with a counterexample. Then ``fn(geometry)`` is computed
+symbolically and every component must reduce to zero within the time budget,
+else the result is ``inconclusive`` (method ``sampled``), never ``pass``.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import time
+from collections.abc import Callable
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from fractions import Fraction
+from functools import cached_property
+from typing import Any
+
+import flint
+import sympy as sp
+
+from ._ratfun import BudgetExceeded, Elem, Field, Unsupported, arb_precision
+from ._sampling import DIGITS, Sampler
+
+__all__ = ["Geometry", "PointData", "Outcome", "prove_zero", "BudgetExceeded", "Unsupported"]
+
+DEFAULT_BUDGET = 20.0
+_INEXACT = {False: "interval arithmetic", True: f"{DIGITS + 10}-digit floating point"}
+
+# real-variable conventions for the sympy path's floating evaluation
+_MP_EXTRA = {
+    "DiracDelta": lambda *a: 0,
+    "Heaviside": lambda x, *a: 1 if x > 0 else 0,
+    "sign": lambda x: (x > 0) - (x < 0),
+}
+DEFAULT_SAMPLES = 8
+
+
+# ---------------------------------------------------------------------------
+# curvature, generic over the number type
+
+
+class _Curvature:
+    """Tensor formulas shared by the symbolic chart and the per-point data.
+
+    Subclasses provide ``n``, ``g``, ``dg`` (``dg[c][a][b] = d_c g_ab``),
+    ``ddg`` (``ddg[c][d][a][b]``), ``zero``, ``_iz(v)`` (is v certainly 0;
+    only used to skip work), ``_nf(v)`` (normal form), ``_inverse()`` and
+    ``dgamma(d, a, b, c)`` (``d_d Gamma^a_bc``).
+    """
+
+    n: int
+
+    def vanishes(self, v) -> bool:
+        """Cheap test that ``v`` is certainly zero (structural zeros; never a proof of non-zero)."""
+        return self._iz(v)
+
+    def _sum(self, terms):
+        out = self.zero
+        for t in terms:
+            out = out + t
+        return out
+
+    @cached_property
+    def _inv_det(self):
+        return self._inverse()
+
+    @cached_property
+    def ginv(self):
+        """Inverse metric g^ab (list of lists)."""
+        return self._inv_det[0]
+
+    @cached_property
+    def det(self):
+        """det g."""
+        return self._inv_det[1]
+
+    @cached_property
+    def christoffel_first(self):
+        """Gamma_abc = (d_b g_ac + d_c g_ab - d_a g_bc)/2 (first index lowered)."""
+        n, dg, iz = self.n, self.dg, self._iz
+        out = [[[self.zero] * n for _ in range(n)] for _ in range(n)]
+        for a in range(n):
+            for b in range(n):
+                for c in range(b, n):
+                    v = dg[b][a][c] + dg[c][a][b] - dg[a][b][c]
+                    if not iz(v):
+                        v = self._nf(v / 2)
+                    out[a][b][c] = out[a][c][b] = v
+        return out
+
+    @cached_property
+    def christoffel(self):
+        """Gamma^a_bc (symmetric in b, c)."""
+        n, gi, G1, iz = self.n, self.ginv, self.christoffel_first, self._iz
+        out = [[[self.zero] * n for _ in range(n)] for _ in range(n)]
+        for a in range(n):
+            for b in range(n):
+                for c in range(b, n):
+                    v = self._sum(gi[a][e] * G1[e][b][c] for e in range(n) if not iz(gi[a][e]) and not iz(G1[e][b][c]))
+                    v = self._nf(v)
+                    out[a][b][c] = out[a][c][b] = v
+        return out
+
+    @cached_property
+    def _trace(self):
+        """Gamma^a_ab."""
+        n, G = self.n, self.christoffel
+        return [self._nf(self._sum(G[a][a][b] for a in range(n))) for b in range(n)]
+
+    @cached_property
+    def ricci(self):
+        """R_bd = d_a Gamma^a_bd - d_d Gamma^a_ab + Gamma^a_ae Gamma^e_bd - Gamma^a_de Gamma^e_ab."""
+        n, G, iz, tr = self.n, self.christoffel, self._iz, self._trace
+        out = [[self.zero] * n for _ in range(n)]
+        for b in range(n):
+            for d in range(b, n):
+                terms = [self.dgamma(a, a, b, d) for a in range(n)]
+                terms.append(-self.dtrace(d, b))
+                for e in range(n):
+                    if not iz(G[e][b][d]) and not iz(tr[e]):
+                        terms.append(tr[e] * G[e][b][d])
+                    for a in range(n):
+                        if not iz(G[a][d][e]) and not iz(G[e][a][b]):
+                            terms.append(-(G[a][d][e] * G[e][a][b]))
+                v = self._nf(self._sum(t for t in terms if not iz(t)))
+                out[b][d] = out[d][b] = v
+        return out
+
+    @cached_property
+    def riemann(self):
+        """R^a_bcd = d_c Gamma^a_db - d_d Gamma^a_cb + Gamma^a_ce Gamma^e_db - Gamma^a_de Gamma^e_cb."""
+        n, G, iz = self.n, self.christoffel, self._iz
+        out = [[[[self.zero] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
+        for a in range(n):
+            for b in range(n):
+                for c in range(n):
+                    for d in range(c + 1, n):
+                        terms = [self.dgamma(c, a, d, b), -self.dgamma(d, a, c, b)]
+                        for e in range(n):
+                            if not iz(G[a][c][e]) and not iz(G[e][d][b]):
+                                terms.append(G[a][c][e] * G[e][d][b])
+                            if not iz(G[a][d][e]) and not iz(G[e][c][b]):
+                                terms.append(-(G[a][d][e] * G[e][c][b]))
+                        v = self._nf(self._sum(t for t in terms if not iz(t)))
+                        out[a][b][c][d] = v
+                        out[a][b][d][c] = -v if not iz(v) else self.zero
+        return out
+
+    @cached_property
+    def riemann_lower(self):
+        """R_abcd = g_ae R^e_bcd."""
+        n, g, R, iz = self.n, self.g, self.riemann, self._iz
+        out = [[[[self.zero] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
+        for a in range(n):
+            for b in range(n):
+                for c in range(n):
+                    for d in range(c + 1, n):
+                        v = self._nf(
+                            self._sum(
+                                g[a][e] * R[e][b][c][d] for e in range(n) if not iz(g[a][e]) and not iz(R[e][b][c][d])
+                            )
+                        )
+                        out[a][b][c][d] = v
+                        out[a][b][d][c] = -v if not iz(v) else self.zero
+        return out
+
+    @cached_property
+    def ricci_scalar(self):
+        """R = g^ab R_ab."""
+        n, gi, Ric, iz = self.n, self.ginv, self.ricci, self._iz
+        return self._nf(
+            self._sum(
+                gi[a][b] * Ric[a][b] for a in range(n) for b in range(n) if not iz(gi[a][b]) and not iz(Ric[a][b])
+            )
+        )
+
+    @cached_property
+    def einstein(self):
+        """G_ab = R_ab - R g_ab / 2."""
+        n, g, Ric, R, iz = self.n, self.g, self.ricci, self.ricci_scalar, self._iz
+        out = [[self.zero] * n for _ in range(n)]
+        for a in range(n):
+            for b in range(a, n):
+                v = Ric[a][b]
+                if not iz(g[a][b]) and not iz(R):
+                    v = self._nf(v - g[a][b] * R / 2)
+                out[a][b] = out[b][a] = v
+        return out
+
+    @cached_property
+    def ricci_mixed(self):
+        """R^a_b = g^ac R_cb."""
+        n, gi, Ric, iz = self.n, self.ginv, self.ricci, self._iz
+        return [
+            [
+                self._nf(self._sum(gi[a][c] * Ric[c][b] for c in range(n) if not iz(gi[a][c]) and not iz(Ric[c][b])))
+                for b in range(n)
+            ]
+            for a in range(n)
+        ]
+
+    @cached_property
+    def ricci_square(self):
+        """R_ab R^ab."""
+        n, M, iz = self.n, self.ricci_mixed, self._iz
+        return self._nf(
+            self._sum(M[a][b] * M[b][a] for a in range(n) for b in range(n) if not iz(M[a][b]) and not iz(M[b][a]))
+        )
+
+    @cached_property
+    def riemann_mixed(self):
+        """R^ab_cd = g^bf R^a_fcd (only c < d filled; antisymmetric in both pairs)."""
+        n, gi, R, iz = self.n, self.ginv, self.riemann, self._iz
+        out = {}
+        for a in range(n):
+            for b in range(n):
+                for c in range(n):
+                    for d in range(c + 1, n):
+                        v = self._sum(
+                            gi[b][f] * R[a][f][c][d] for f in range(n) if not iz(gi[b][f]) and not iz(R[a][f][c][d])
+                        )
+                        if not iz(v):
+                            out[a, b, c, d] = self._nf(v)
+        return out
+
+    @cached_property
+    def kretschmann(self):
+        """R_abcd R^abcd = sum R^ab_cd R^cd_ab."""
+        M = self.riemann_mixed
+        terms = []
+        for (a, b, c, d), v in M.items():
+            if a < b:
+                w = M.get((c, d, a, b))
+                if w is not None:
+                    terms.append(v * w)
+        return self._nf(self._sum(terms) * 4) if terms else self.zero
+
+    @cached_property
+    def weyl_square(self):
+        """C_abcd C^abcd = K - 4/(n-2) R_ab R^ab + 2/((n-1)(n-2)) R^2 (n >= 3)."""
+        n = self.n
+        if n < 3:
+            return self.zero
+        R = self.ricci_scalar
+        v = self.kretschmann - self.ricci_square * 4 / (n - 2) + R * R * 2 / ((n - 1) * (n - 2))
+        return self._nf(v)
+
+
+def _invert(M, n, iz, nf, one, zero, pick=None):
+    """Inverse and determinant by Gauss-Jordan elimination, block by block."""
+    # connected blocks of the non-zero pattern
+    seen = [False] * n
+    blocks = []
+    for i in range(n):
+        if seen[i]:
+            continue
+        stack, blk = [i], []
+        seen[i] = True
+        while stack:
+            k = stack.pop()
+            blk.append(k)
+            for j in range(n):
+                if not seen[j] and (not iz(M[k][j]) or not iz(M[j][k])):
+                    seen[j] = True
+                    stack.append(j)
+        blocks.append(sorted(blk))
+    inv = [[zero] * n for _ in range(n)]
+    det = one
+    for blk in blocks:
+        m = len(blk)
+        A = [[M[blk[i]][blk[j]] for j in range(m)] + [one if i == j else zero for j in range(m)] for i in range(m)]
+        for col in range(m):
+            cands = [r for r in range(col, m) if not iz(A[r][col])]
+            if not cands:
+                raise ZeroDivisionError("the metric is degenerate")
+            piv = pick(A, cands, col) if pick else cands[0]
+            if piv != col:
+                A[col], A[piv] = A[piv], A[col]
+                det = -det
+            p = A[col][col]
+            det = nf(det * p)
+            pinv = one / p
+            A[col] = [nf(x * pinv) if not iz(x) else zero for x in A[col]]
+            for r in range(m):
+                if r != col and not iz(A[r][col]):
+                    f = A[r][col]
+                    A[r] = [nf(A[r][j] - f * A[col][j]) if not iz(A[col][j]) else A[r][j] for j in range(2 * m)]
+        for i in range(m):
+            for j in range(m):
+                inv[blk[i]][blk[j]] = A[i][m + j]
+    return inv, det
+
+
+# ---------------------------------------------------------------------------
+# outcome of one verification
+
+
+@dataclass
+class Outcome:
+    """Result of :meth:`Geometry.verify` (the verifier turns it into a CheckResult)."""
+
+    status: str  # pass | fail | inconclusive | skipped
+    method: str  # symbolic | sampled | none
+    detail: str
+    counterexample: dict | None = None
+    points: int = 0  # sample points that agreed
+    inexact_points: int = 0  # of which evaluated in interval arithmetic
+    path: str = ""
+    nonzero: dict = field(default_factory=dict)  # component -> sympy string (symbolic residuals)
+
+
+def _fmt_number(v) -> str:
+    if isinstance(v, flint.fmpq):
+        return str(v)
+    if isinstance(v, flint.arb):
+        return "~" + v.str(12, radius=False)
+    return "~" + sp.sstr(sp.Float(v, 12)) if not isinstance(v, (int, Fraction)) else str(v)
+
+
+# ---------------------------------------------------------------------------
+# the symbolic chart
+
+
+def _spec_exprs(spec):
+    """Every expression of the chart that may be converted to a field element."""
+    out = list(spec.metric)
+    if spec.cosmological_constant is not None:
+        out.append(spec.cosmological_constant)
+    if spec.potential is not None:
+        out.extend(spec.potential)
+    if spec.fluid is not None:
+        out += [spec.fluid.density, spec.fluid.pressure, *spec.fluid.velocity]
+    if spec.null_dust is not None:
+        out += [spec.null_dust.density, *spec.null_dust.vector]
+    for u in spec.observers.values():
+        out.extend(u)
+    for inv in spec.invariants.values():
+        out.append(inv.value)
+    out.extend(spec.extra.get("_exprs", ()))  # prove_zero's expressions
+    out.append(sp.pi)
+    return [sp.sympify(e) for e in out]
+
+
+class Geometry(_Curvature):
+    """A chart prepared for verification.
+
+    Parameters: ``spec`` (ChartSpec), ``seed`` for the sample points,
+    ``budget`` seconds per symbolic proof, ``samples`` number of points,
+    ``path`` to force ``"sympy"`` (for comparisons and tests).
+
+    Public attributes and methods:
+
+    * ``spec``, ``coords``, ``params``, ``n``, ``path`` ("flint" / "sympy"),
+      ``fallback_reason`` (why not flint, or ""), ``field`` (the flint
+      :class:`~gravicat._ratfun.Field` or None);
+    * exact objects in the path's representation (flint elements or sympy
+      expressions; lists indexed by coordinate number): ``g``, ``dg[c][a][b]``,
+      ``ddg[c][d][a][b]``, ``ginv``, ``det``, ``christoffel[a][b][c]``
+      (Gamma^a_bc), ``christoffel_first``, ``riemann[a][b][c][d]``
+      (R^a_bcd), ``riemann_lower``, ``ricci``, ``ricci_scalar``, ``einstein``,
+      ``ricci_mixed``, ``ricci_square``, ``kretschmann``, ``weyl_square``
+      (cached; computed on first use);
+    * ``val(expr)``, ``dval(expr, i)``, ``ddval(expr, i, j)``: an expression of
+      the chart and its derivatives in the same representation;
+    * ``to_sympy(v)``: any such value as a sympy expression in the chart's own
+      symbols (``cos(theta)`` etc.), factored;
+    * ``is_zero(v)``: exact zero test of the path;
+    * ``sample_points()``: list of :class:`PointData` (seeded, cached);
+    * ``verify(fn, ...)``: sampled stage then proof, an :class:`Outcome`;
+    * ``component(name_indices)``: "R[t,r]"-style label helper.
+    """
+
+    def __init__(
+        self,
+        spec,
+        *,
+        seed: int = 0,
+        budget: float = DEFAULT_BUDGET,
+        samples: int = DEFAULT_SAMPLES,
+        path: str | None = None,
+    ):
+        self.spec = spec
+        self.coords = tuple(spec.coords)
+        self.params = tuple(spec.params)
+        self.n = len(self.coords)
+        self.seed = seed
+        self.budget = budget
+        self.samples = samples
+        self.field: Field | None = None
+        self.fallback_reason = ""
+        self._dcache: dict = {}
+        self._dgam: dict = {}
+        self._dtr: dict = {}
+        exprs = _spec_exprs(spec)
+        if path != "sympy":
+            try:
+                self.field = Field(self.coords, self.params, exprs, functions=spec.functions)
+                self.g = [[self.field.element(spec.metric[i, j]) for j in range(self.n)] for i in range(self.n)]
+                self.path = "flint"
+            except Unsupported as e:
+                self.field = None
+                self.fallback_reason = str(e)
+        if self.field is None:
+            self.path = "sympy"
+            self.g = [[sp.sympify(spec.metric[i, j]) for j in range(self.n)] for i in range(self.n)]
+        self.zero = self.field.zero if self.field else sp.Integer(0)
+        self.one = self.field.one if self.field else sp.Integer(1)
+
+    # -- representation ------------------------------------------------------
+    @property
+    def metric(self):
+        return self.spec.metric
+
+    def _iz(self, v) -> bool:
+        if isinstance(v, Elem):
+            return not v.c
+        return v == 0
+
+    def _nf(self, v):
+        if self.field is not None:
+            return v
+        return sp.cancel(v) if v != 0 else v
+
+    def is_zero(self, v) -> bool:
+        """Exact zero test (flint: the reduced fraction is 0; sympy: cancel, then simplify)."""
+        if isinstance(v, Elem):
+            return not v.c
+        v = sp.sympify(v)
+        if v == 0 or sp.cancel(v) == 0:
+            return True
+        return sp.simplify(v) == 0
+
+    def val(self, expr):
+        """An expression of the chart as a value of this path."""
+        key = ("v", expr)
+        r = self._dcache.get(key)
+        if r is None:
+            if self.field is not None:
+                r = self.field.element(sp.sympify(expr))
+            else:
+                r = sp.sympify(expr)
+            self._dcache[key] = r
+        return r
+
+    def dval(self, expr, i):
+        key = ("d", expr, i)
+        r = self._dcache.get(key)
+        if r is None:
+            r = self._diff(self.val(expr), i)
+            self._dcache[key] = r
+        return r
+
+    def ddval(self, expr, i, j):
+        i, j = min(i, j), max(i, j)
+        key = ("dd", expr, i, j)
+        r = self._dcache.get(key)
+        if r is None:
+            r = self._diff(self.dval(expr, i), j)
+            self._dcache[key] = r
+        return r
+
+    def const(self, q):
+        return self.field.const(q) if self.field else sp.Rational(q)
+
+    def _diff(self, v, i):
+        if isinstance(v, Elem):
+            return v.diff(i)
+        return sp.cancel(sp.diff(v, self.coords[i]))
+
+    def to_sympy(self, v):
+        """A value of this path as a sympy expression in the chart's symbols."""
+        if isinstance(v, Elem):
+            return v.F.to_sympy(v)
+        return sp.factor(v) if v != 0 else sp.Integer(0)
+
+    def label(self, name, *idx):
+        return f"{name}[{','.join(str(self.coords[i]) for i in idx)}]"
+
+    # -- derivatives of the metric (computed once) ---------------------------
+    @cached_property
+    def dg(self):
+        n = self.n
+        out = [[[None] * n for _ in range(n)] for _ in range(n)]
+        for c in range(n):
+            for a in range(n):
+                for b in range(a, n):
+                    out[c][a][b] = out[c][b][a] = (
+                        self._diff(self.g[a][b], c) if not self._iz(self.g[a][b]) else self.zero
+                    )
+        return out
+
+    @cached_property
+    def ddg(self):
+        n = self.n
+        dg = self.dg
+        out = [[[[None] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
+        for c in range(n):
+            for d in range(c, n):
+                for a in range(n):
+                    for b in range(a, n):
+                        v = self._diff(dg[c][a][b], d) if not self._iz(dg[c][a][b]) else self.zero
+                        out[c][d][a][b] = out[c][d][b][a] = out[d][c][a][b] = out[d][c][b][a] = v
+        return out
+
+    def _inverse(self):
+        def pick(A, cands, col):
+            if self.field is None:
+                return min(cands, key=lambda r: sp.count_ops(A[r][col]))
+            return min(cands, key=lambda r: sum(len(p) for p in A[r][col].c.values()) + len(A[r][col].d))
+
+        return _invert(self.g, self.n, self._iz, self._nf, self.one, self.zero, pick)
+
+    def dgamma(self, d, a, b, c):
+        key = (d, a, min(b, c), max(b, c))
+        v = self._dgam.get(key)
+        if v is None:
+            G = self.christoffel[a][b][c]
+            v = self._diff(G, d) if not self._iz(G) else self.zero
+            self._dgam[key] = v
+        return v
+
+    def dtrace(self, d, b):
+        key = (min(b, d), max(b, d))  # d_d Gamma^a_ab = d_d d_b log sqrt|g| is symmetric
+        v = self._dtr.get(key)
+        if v is None:
+            t = self._trace[key[1]]
+            v = self._diff(t, key[0]) if not self._iz(t) else self.zero
+            self._dtr[key] = v
+        return v
+
+    # -- budget --------------------------------------------------------------
+    @contextmanager
+    def deadline(self, seconds: float | None):
+        """Cooperative time limit for flint computations (raises BudgetExceeded)."""
+        if self.field is None or seconds is None:
+            yield
+            return
+        old = self.field.deadline
+        self.field.deadline = time.monotonic() + seconds
+        try:
+            yield
+        finally:
+            self.field.deadline = old
+
+    # -- sampling ------------------------------------------------------------
+    @cached_property
+    def _sampler(self):
+        angle_q = {}
+        func_keys = []
+        if self.field is not None:
+            for g in self.field.base:
+                if g.kind == "cos" and g.data["atom"] in self.coords:
+                    angle_q[g.data["atom"]] = g.data["q"]
+                if g.kind == "func":
+                    func_keys.append(((g.data["func"], g.data["alpha"]), str(g.sym)))
+        else:
+            func_keys = [(k, str(s)) for k, s in self._sym_funcs.items()]
+        return Sampler(
+            self.coords,
+            self.params,
+            tuple(self.spec.param_ranges) + tuple(self.spec.domain),
+            angle_q,
+            func_keys,
+            seed=self.seed,
+        )
+
+    @cached_property
+    def _sym_funcs(self):
+        """sympy path: function values and derivatives -> generator keys."""
+        out = {}
+        maxo = {}
+        for e in _spec_exprs(self.spec):
+            for d in e.atoms(sp.Derivative):
+                f = d.expr
+                maxo[f] = max(maxo.get(f, 0), sum(k for _, k in d.variable_count))
+            for f in e.atoms(sp.core.function.AppliedUndef):
+                maxo.setdefault(f, 0)
+        for f in self.spec.functions:
+            maxo.setdefault(f, 0)
+        from itertools import combinations_with_replacement
+
+        for f, o in maxo.items():
+            for k in range(o + 4):
+                for combo in combinations_with_replacement(range(len(f.args)), k):
+                    alpha = tuple(combo.count(j) for j in range(len(f.args)))
+                    sym = f if not k else sp.Derivative(f, *[(f.args[j], m) for j, m in enumerate(alpha) if m])
+                    out[(f.func, alpha)] = sym
+        return {k: v for k, v in out.items()}
+
+    def draw_point(self, tries: int = 400, need_inverse: bool = True):
+        """A new sample point (:class:`PointData`), or None when no valid point was found.
+
+        The metric must be finite there, and invertible unless ``need_inverse`` is false."""
+        import mpmath
+
+        with mpmath.workdps(DIGITS + 10):
+            return self._draw_point(tries, need_inverse)
+
+    def _draw_point(self, tries, need_inverse):
+        for _ in range(tries):
+            s = self._sampler.draw()
+            if s is None:
+                continue
+            try:
+                if self.field is not None:
+                    vals = dict(s.values)
+                    vals.update(s.funcs)
+                    for v, (u, q) in s.angles.items():
+                        if any(g.kind == "coord" and g.sym == v for g in self.field.base):
+                            with arb_precision():
+                                vals[v] = 2 * q * flint.arb(flint.fmpq(u.numerator, u.denominator)).atan()
+                    angles = {v: u for v, (u, q) in s.angles.items()}
+                    pt = self.field.point(vals, angles)
+                    pdata = PointData(self, s, pt)
+                else:
+                    pdata = PointData(self, s, None)
+                _ = pdata.g  # the metric must be finite there
+                if need_inverse:
+                    _ = pdata.ginv
+            except (ZeroDivisionError, ValueError, KeyError, TypeError, NameError):
+                continue
+            return pdata
+        return None
+
+    @cached_property
+    def _points(self):
+        pts = []
+        attempts = 0
+        while len(pts) < self.samples and attempts < self.samples * 3:
+            attempts += 1
+            p = self.draw_point()
+            if p is None:
+                break
+            pts.append(p)
+        return pts
+
+    def sample_points(self):
+        """The seeded sample points (list of :class:`PointData`), drawn once."""
+        return list(self._points)
+
+    # -- verification --------------------------------------------------------
+    def verify(self, fn: Callable[[Any], dict], *, budget: float | None = None, what: str = "the claim") -> Outcome:
+        """Sampled stage, then symbolic proof of ``fn(X) == 0`` component-wise."""
+        budget = self.budget if budget is None else budget
+        agreed = inexact = 0
+        import mpmath
+
+        for pd in self.sample_points():
+            try:
+                with mpmath.workdps(DIGITS + 10):
+                    res = fn(pd)
+            except (ZeroDivisionError, ValueError):
+                continue
+            bad = None
+            for name, v in res.items():
+                z = pd.zero_test(v)
+                if z is False:
+                    bad = (name, v)
+                    break
+                if z is None:
+                    pd.inexact = True
+            if bad is not None:
+                return Outcome(
+                    "fail",
+                    "sampled",
+                    f"{what} do not hold at a sample point: {bad[0]} = {_fmt_number(bad[1])}",
+                    counterexample={
+                        "point": dict(pd.sample.shown),
+                        "component": bad[0],
+                        "residual": _fmt_number(bad[1]),
+                    },
+                    points=agreed,
+                    inexact_points=inexact,
+                    path=self.path,
+                )
+            agreed += 1
+            if pd.inexact:
+                inexact += 1
+        if not self.sample_points():
+            sampled_note = "no valid sample point could be drawn from the domain"
+        else:
+            sampled_note = f"{agreed} sample points agreed" + (
+                f" ({inexact} in {_INEXACT[self.field is None]}, not exact)" if inexact else ""
+            )
+        nonzero, err = self._symbolic(fn, budget)
+        if err == "budget":
+            return Outcome(
+                "inconclusive",
+                "sampled",
+                f"{sampled_note}; the symbolic proof did not finish within {budget:g} s ({self.path} path)",
+                points=agreed,
+                inexact_points=inexact,
+                path=self.path,
+            )
+        if err:
+            return Outcome(
+                "inconclusive",
+                "sampled",
+                f"{sampled_note}; the symbolic proof failed ({err})",
+                points=agreed,
+                inexact_points=inexact,
+                path=self.path,
+            )
+        if not nonzero:
+            return Outcome(
+                "pass",
+                "symbolic",
+                f"proved identically on the {self.path} path; {sampled_note}",
+                points=agreed,
+                inexact_points=inexact,
+                path=self.path,
+            )
+        first = next(iter(nonzero))
+        if self.field is not None and self.field.complete:
+            # a definite non-zero: look for a point that shows it
+            cex = None
+            for _ in range(20):
+                pd = self.draw_point()
+                if pd is None:
+                    break
+                try:
+                    v = fn(pd).get(first)
+                except ZeroDivisionError:
+                    continue
+                if v is not None and pd.zero_test(v) is False:
+                    cex = {"point": dict(pd.sample.shown), "component": first, "residual": _fmt_number(v)}
+                    break
+            if cex is None:
+                cex = {"point": {}, "component": first, "residual": nonzero[first]}
+            return Outcome(
+                "fail",
+                "symbolic",
+                f"{what} do not hold: {first} = {_short(nonzero[first])} (not identically zero)",
+                counterexample=cex,
+                points=agreed,
+                inexact_points=inexact,
+                path=self.path,
+                nonzero=nonzero,
+            )
+        return Outcome(
+            "inconclusive",
+            "sampled",
+            f"{sampled_note}; the {self.path} normal form of {first} did not reduce to zero "
+            f"({_short(nonzero[first])}), "
+            "which this chart's generators cannot decide",
+            points=agreed,
+            inexact_points=inexact,
+            path=self.path,
+            nonzero=nonzero,
+        )
+
+    def _symbolic(self, fn, budget):
+        """Run ``fn(self)`` and return ({component: residual string} of non-zeros, error)."""
+        if self.field is not None:
+            try:
+                with self.deadline(budget):
+                    res = fn(self)
+                    nonzero = {k: v for k, v in res.items() if not self.is_zero(v)}
+            except BudgetExceeded:
+                return {}, "budget"
+            except Unsupported as e:
+                return {}, f"outside the exact field: {e}"
+            except ZeroDivisionError as e:
+                return {}, f"division by zero ({e})"
+            return {k: sp.sstr(self.to_sympy(v)) for k, v in nonzero.items()}, None
+        return _run_limited(lambda: {k: sp.sstr(v) for k, v in fn(self).items() if not self.is_zero(v)}, budget)
+
+    def prove_values(self, fn, budget=None):
+        """Compute ``fn(self)`` (a dict of values) within the budget: (dict or None, error)."""
+        budget = self.budget if budget is None else budget
+        if self.field is not None:
+            try:
+                with self.deadline(budget):
+                    return fn(self), None
+            except BudgetExceeded:
+                return None, "budget"
+        res, err = _run_limited(lambda: {k: v for k, v in fn(self).items()}, budget)
+        return (res, err) if err else (res, None)
+
+
+def _short(s: str, limit: int = 200) -> str:
+    return s if len(s) <= limit else s[: limit - 3] + "..."
+
+
+def _run_limited(fn, seconds):
+    """Run ``fn`` in a forked child with a hard time limit: (result, error)."""
+    try:
+        ctx = multiprocessing.get_context("fork")
+    except ValueError:  # pragma: no cover - platforms without fork
+        try:
+            return fn(), None
+        except Exception as e:  # noqa: BLE001
+            return {}, f"{type(e).__name__}: {e}"
+    recv, send = ctx.Pipe(duplex=False)
+
+    def child():
+        try:
+            send.send((fn(), None))
+        except Exception as e:  # noqa: BLE001
+            send.send(({}, f"{type(e).__name__}: {e}"))
+        finally:
+            send.close()
+
+    proc = ctx.Process(target=child, daemon=True)
+    proc.start()
+    send.close()
+    try:
+        if recv.poll(seconds):
+            try:
+                out = recv.recv()
+            except EOFError:
+                out = ({}, "the proof process ended without a result")
+        else:
+            out = ({}, "budget")
+    finally:
+        if proc.is_alive():
+            proc.kill()
+        proc.join(1)
+        recv.close()
+    return out
+
+
+# ---------------------------------------------------------------------------
+# per-point data
+
+
+class PointData(_Curvature):
+    """Exact (or interval) values at one sample point: g, dg, ddg evaluated
+    from the symbolic side; inverse, Christoffel symbols and curvature
+    computed here from those numbers (same formulas as the symbolic side,
+    with d Gamma from the second derivatives of g)."""
+
+    def __init__(self, geometry: Geometry, sample, point):
+        self.geometry = geometry
+        self.sample = sample
+        self.point = point
+        self.n = geometry.n
+        self.coords = geometry.coords
+        self.inexact = False
+        self._cache: dict = {}
+        self._evc: dict = {}
+        if point is not None:
+            self.zero = flint.fmpq(0)
+            self.one = flint.fmpq(1)
+        else:
+            import mpmath
+
+            self._mp = mpmath
+            self.zero = mpmath.mpf(0)
+            self.one = mpmath.mpf(1)
+
+    # evaluation of symbolic values at this point
+    def ev(self, v):
+        if isinstance(v, Elem):
+            if not v.c:
+                return self.zero
+            key = id(v)
+            hit = self._evc.get(key)
+            if hit is None or hit[0] is not v:
+                hit = (v, v.evaluate(self.point))
+                self._evc[key] = hit
+            return hit[1]
+        return self._ev_sym(v)
+
+    @cached_property
+    def _subs_funcs(self):
+        geo = self.geometry
+        items = sorted(geo._sym_funcs.items(), key=lambda kv: -sum(kv[0][1]))
+        return [(sym, sp.Symbol(f"_f{i}")) for i, ((_k, _a), sym) in enumerate(items)], [
+            self.sample.funcs[k] for k, _ in items
+        ]
+
+    def _ev_sym(self, expr):
+        mp = self._mp
+        key = expr
+        f = self.geometry._dcache.get(("lamb", key))
+        pairs, fvals = self._subs_funcs
+        syms = list(self.geometry.params) + list(self.geometry.coords) + [s for _, s in pairs]
+        if f is None:
+            e = sp.sympify(expr)
+            for sym, s in pairs:
+                e = e.subs(sym, s)
+            f = sp.lambdify(syms, e, modules=[_MP_EXTRA, "mpmath"])
+            self.geometry._dcache[("lamb", key)] = f
+        with mp.workdps(DIGITS + 10):
+            args = [self.sample.numeric[s] for s in list(self.geometry.params) + list(self.geometry.coords)]
+            args += [mp.mpf(x.numerator) / x.denominator for x in fvals]
+            val = f(*args)
+            if isinstance(val, mp.mpc):
+                if abs(val.imag) > mp.mpf(10) ** (-DIGITS):
+                    raise ValueError("complex value")
+                val = val.real
+            if not mp.isfinite(val):
+                raise ZeroDivisionError("not finite")
+            return mp.mpf(val)
+
+    @staticmethod
+    def _iz(v) -> bool:
+        return v == 0  # an arb ball equals 0 only when it is exactly 0
+
+    def precision(self):
+        """Context for arithmetic on these values (the floating sympy path needs extra digits)."""
+        import mpmath
+
+        return mpmath.workdps(DIGITS + 10)
+
+    def _nf(self, v):
+        return v
+
+    def zero_test(self, v):
+        """True (exactly 0), False (certainly non-zero) or None (0 within the working precision)."""
+        if isinstance(v, (flint.fmpq, int, Fraction)):
+            return v == 0
+        if isinstance(v, flint.arb):
+            return None if v.contains(0) else False
+        mp = self._mp
+        scale = max([mp.mpf(1)] + [abs(self.g[a][b]) for a in range(self.n) for b in range(self.n)])
+        return None if abs(v) <= scale * mp.mpf(10) ** (-(DIGITS // 2)) else False
+
+    # geometry-facing API (same names as Geometry)
+    def val(self, expr):
+        key = ("v", expr)
+        if key not in self._cache:
+            self._cache[key] = self.ev(self.geometry.val(expr))
+        return self._cache[key]
+
+    def dval(self, expr, i):
+        key = ("d", expr, i)
+        if key not in self._cache:
+            self._cache[key] = self.ev(self.geometry.dval(expr, i))
+        return self._cache[key]
+
+    def ddval(self, expr, i, j):
+        key = ("dd", expr, min(i, j), max(i, j))
+        if key not in self._cache:
+            self._cache[key] = self.ev(self.geometry.ddval(expr, i, j))
+        return self._cache[key]
+
+    def const(self, q):
+        if self.point is not None:
+            q = Fraction(q)
+            return flint.fmpq(q.numerator, q.denominator)
+        return self._mp.mpf(Fraction(q).numerator) / Fraction(q).denominator
+
+    def label(self, name, *idx):
+        return self.geometry.label(name, *idx)
+
+    @cached_property
+    def g(self):
+        geo = self.geometry
+        n = self.n
+        return [[self.ev(geo.g[a][b]) for b in range(n)] for a in range(n)]
+
+    @cached_property
+    def dg(self):
+        geo = self.geometry
+        n = self.n
+        return [[[self.ev(geo.dg[c][a][b]) for b in range(n)] for a in range(n)] for c in range(n)]
+
+    @cached_property
+    def ddg(self):
+        geo = self.geometry
+        n = self.n
+        return [
+            [[[self.ev(geo.ddg[c][d][a][b]) for b in range(n)] for a in range(n)] for d in range(n)] for c in range(n)
+        ]
+
+    def _inverse(self):
+        def pick(A, cands, col):
+            if self.point is None or any(isinstance(A[r][col], flint.arb) for r in cands):
+                return max(
+                    cands, key=lambda r: abs(float(A[r][col].mid() if isinstance(A[r][col], flint.arb) else A[r][col]))
+                )
+            return cands[0]
+
+        with arb_precision():
+            inv, det = _invert(self.g, self.n, self._iz, self._nf, self.one, self.zero, pick)
+        if self._iz(det) or (isinstance(det, flint.arb) and det.contains(0)):
+            raise ZeroDivisionError("degenerate metric at the point")
+        return inv, det
+
+    def _dlow(self, d, b, c):
+        """d_d Gamma_ebc - d_d g_ef Gamma^f_bc, for every e (cached)."""
+        key = (d, b, c)
+        low = self._cache.get(key)
+        if low is None:
+            n, dg, ddg, G, iz = self.n, self.dg, self.ddg, self.christoffel, self._iz
+            low = []
+            for e in range(n):
+                v = (ddg[c][d][e][b] + ddg[b][d][e][c] - ddg[e][d][b][c]) / 2
+                for f in range(n):
+                    x, y = dg[d][e][f], G[f][b][c]
+                    if not iz(x) and not iz(y):
+                        v = v - x * y
+                low.append(v)
+            self._cache[key] = low
+        return low
+
+    def dgamma(self, d, a, b, c):
+        """d_d Gamma^a_bc = g^ae (d_d Gamma_ebc - d_d g_ef Gamma^f_bc)."""
+        if b > c:
+            b, c = c, b
+        key = (d, a, b, c)
+        v = self._cache.get(key)
+        if v is None:
+            gi, iz = self.ginv, self._iz
+            low = self._dlow(d, b, c)
+            v = self.zero
+            for e in range(self.n):
+                if not iz(gi[a][e]) and not iz(low[e]):
+                    v = v + gi[a][e] * low[e]
+            self._cache[key] = v
+        return v
+
+    def dtrace(self, d, b):
+        return self._sum(self.dgamma(d, a, a, b) for a in range(self.n))
+
+
+def prove_zero(
+    exprs: dict,
+    coords,
+    params,
+    relations=(),
+    *,
+    seed=0,
+    budget=DEFAULT_BUDGET,
+    samples=DEFAULT_SAMPLES,
+    what: str = "the identities",
+) -> Outcome:
+    """Sampled stage and proof that every sympy expression of ``exprs`` (name -> expr) is identically zero.
+
+    For checks that need no curvature (limits, transforms): the field is built
+    over the expressions themselves; ``relations`` (inequalities on
+    ``coords`` and ``params``) bound the sample points. Undeclared symbols are
+    treated as parameters.
+    """
+    from .chartspec import ChartSpec
+
+    exprs = {k: sp.sympify(v) for k, v in exprs.items()}
+    coords = tuple(coords)
+    params = list(params)
+    funcs = set()
+    for e in exprs.values():
+        for s in sorted(e.free_symbols - set(coords) - set(params), key=str):
+            params.append(s)
+        funcs |= e.atoms(sp.core.function.AppliedUndef)
+    spec = ChartSpec(
+        entry="",
+        chart="",
+        field_equations="none",
+        coords=coords,
+        params=tuple(params),
+        metric=sp.ImmutableMatrix(sp.eye(len(coords))),
+        functions=tuple(sorted(funcs, key=str)),
+        domain=tuple(relations),
+        extra={"_exprs": list(exprs.values())},
+    )
+    geo = Geometry(spec, seed=seed, budget=budget, samples=samples)
+    return geo.verify(lambda X: {k: X.val(v) for k, v in exprs.items()}, what=what)

@@ -1,0 +1,267 @@
+"""Verifier ``limits``: declared limits, flat-when substitutions and asymptotic flatness.
+
+* each limit of the chart: substitute the parameters (and coordinates) and
+  compare with the target chart "ENTRY:CHART" (resolved through
+  ``spec.extra["resolve"]``), component by component, exactly;
+* each ``flat-when`` substitution: the Riemann tensor vanishes identically;
+* tag ``asymptotically-flat``: g_tt = -(1 - 2M/r + O(1/r^2)) at large r, for
+  the radial coordinate ``r`` (series in 1/r).
+"""
+
+from __future__ import annotations
+
+from gravicat import hookimpl
+
+RADIAL = ("r", "rho", "R")
+MASS = ("M", "m")
+
+
+def _filter_relations(rels):
+    import sympy as sp
+
+    out = []
+    for rel in rels:
+        if rel is sp.true or rel == sp.true:
+            continue
+        if rel is sp.false or rel == sp.false:
+            continue  # a range made empty by the substitution no longer constrains the limit
+        out.append(rel)
+    return tuple(out)
+
+
+def _subs(expr, mapping):
+    return expr.subs(mapping, simultaneous=True) if mapping else expr
+
+
+def _coeffs_in(F, p, j):
+    """Coefficients of the base polynomial ``p`` in generator ``j``: {power: polynomial}."""
+    out = {}
+    for exps, c in p.terms():
+        e = exps[j]
+        mono = list(exps)
+        mono[j] = 0
+        term = F.ctx.from_dict({tuple(mono): c})
+        out[e] = out[e] + term if e in out else term
+    return out
+
+
+def _expand_flint(geometry, i, radial):
+    """(c0, c1) of g_tt = c0 + c1/r + O(1/r^2) on the flint path, or None when not applicable there."""
+    F = geometry.field
+    if F is None:
+        return None
+    gen = next((g for g in F.base if g.kind == "coord" and g.sym == radial), None)
+    if gen is None:
+        return None
+    el = geometry.g[i][i]
+    if not el.is_plain():
+        return None
+    # every other generator must be independent of the radial coordinate
+    ri = geometry.coords.index(radial)
+    if any(F.dgen(g.index, ri) is not None for g in F.base if g is not gen):
+        return None
+    num, den = _coeffs_in(F, el.num0(), gen.index), _coeffs_in(F, el.d, gen.index)
+    dn, dd = max(num), max(den)
+    if dn > dd:
+        return None  # g_tt grows: let the series say so
+    from gravicat._ratfun import Elem
+
+    def E(p):
+        return Elem(F, {0: p}, F.pone) if p is not None else F.zero
+
+    lc = E(den[dd])
+    c0 = E(num.get(dd)) / lc
+    # g_tt - c0 = (N - c0 D)/D; its 1/r coefficient is coeff_{dd-1}(N) / lc - c0 coeff_{dd-1}(D) / lc
+    c1 = (E(num.get(dd - 1)) - c0 * E(den.get(dd - 1))) / lc if dd >= 1 else F.zero
+    return geometry.to_sympy(c0), geometry.to_sympy(c1)
+
+
+class LimitsCheck:
+    name = "limits"
+    version = "1"
+
+    def check(self, geometry):
+        spec = geometry.spec
+        out = []
+        for lim in spec.limits:
+            out.append(self._limit(geometry, lim))
+        for i, sub in enumerate(spec.flat_when):
+            out.append(self._flat(geometry, sub, i))
+        if "asymptotically-flat" in spec.tags:
+            out.append(self._asymptotic(geometry))
+        if not out:
+            from gravicat.plugins._common import result
+
+            out.append(
+                result(self.name, "skipped", "none", "no limits, flat-when or asymptotically-flat tag declared", self)
+            )
+        return out
+
+    # -- declared limits -----------------------------------------------------
+    def _limit(self, geometry, lim):
+        import sympy as sp
+
+        from gravicat.geometry import prove_zero
+        from gravicat.plugins._common import from_outcome, resolver, result
+
+        check = f"{self.name}:{lim.name}"
+        spec = geometry.spec
+        resolve = resolver(geometry)
+        if resolve is None:
+            return result(check, "skipped", "none", f"cannot resolve {lim.reduces_to!r}: no resolver available", self)
+        target = resolve(lim.reduces_to)
+        if target is None:
+            return result(check, "skipped", "none", f"target chart {lim.reduces_to!r} not found", self)
+        n = geometry.n
+        if len(target.coords) != n:
+            return result(
+                check, "fail", "none", f"{lim.reduces_to} has {len(target.coords)} coordinates, this chart {n}", self
+            )
+        mapping = dict(lim.set)
+        mapping.update(lim.coordinates)
+        ours = sp.Matrix(spec.metric).applyfunc(lambda e: _subs(sp.sympify(e), mapping))
+        if any(e.has(sp.zoo, sp.nan, sp.oo, -sp.oo) for e in ours):
+            return result(check, "fail", "none", "the substitution makes the metric singular", self)
+        # the target's coordinates by position, its parameters by name
+        rename = {tc: oc for tc, oc in zip(target.coords, spec.coords, strict=True) if tc != oc}
+        by_name = {str(p): p for p in spec.params}
+        rename.update({p: by_name[str(p)] for p in target.params if str(p) in by_name and by_name[str(p)] != p})
+        theirs = sp.Matrix(target.metric).applyfunc(lambda e: _subs(sp.sympify(e), rename))
+        note = ""
+        renamed = [f"{tc}->{oc}" for tc, oc in zip(target.coords, spec.coords, strict=True) if str(tc) != str(oc)]
+        if renamed:
+            note = f" (target coordinates matched by position: {', '.join(renamed)})"
+        exprs = {}
+        for i in range(n):
+            for j in range(i, n):
+                exprs[geometry.label("g", i, j)] = ours[i, j] - theirs[i, j]
+        rels = _filter_relations([_subs(r, mapping) for r in tuple(spec.param_ranges) + tuple(spec.domain)])
+        outcome = prove_zero(
+            exprs,
+            spec.coords,
+            [p for p in spec.params if p not in lim.set],
+            rels,
+            seed=geometry.seed,
+            budget=geometry.budget,
+            samples=geometry.samples,
+            what=f"the limit metric and {lim.reduces_to}",
+        )
+        return from_outcome(check, outcome, self, detail_prefix=f"reduces to {lim.reduces_to}{note}")
+
+    # -- flat-when -----------------------------------------------------------
+    def _flat(self, geometry, sub, i):
+        import dataclasses
+
+        import sympy as sp
+
+        from gravicat.geometry import Geometry
+        from gravicat.plugins._common import from_outcome
+
+        spec = geometry.spec
+        label = ", ".join(f"{k}={v}" for k, v in sub.items())
+        check = f"{self.name}:flat-when[{label}]"
+        metric = sp.ImmutableMatrix(sp.Matrix(spec.metric).applyfunc(lambda e: _subs(sp.sympify(e), sub)))
+        flat = dataclasses.replace(
+            spec,
+            metric=metric,
+            params=tuple(p for p in spec.params if p not in sub),
+            domain=_filter_relations([_subs(r, sub) for r in spec.domain]),
+            param_ranges=_filter_relations([_subs(r, sub) for r in spec.param_ranges]),
+            potential=None,
+            fluid=None,
+            null_dust=None,
+            observers={},
+            invariants={},
+            limits=(),
+            flat_when=(),
+            cosmological_constant=None,
+        )
+        geo = Geometry(flat, seed=geometry.seed, budget=geometry.budget, samples=geometry.samples)
+        n = geo.n
+
+        def fn(X):
+            R = X.riemann
+            return {
+                X.label("Riem", a, b, c, d): R[a][b][c][d]
+                for a in range(n)
+                for b in range(n)
+                for c in range(n)
+                for d in range(c + 1, n)
+            }
+
+        outcome = geo.verify(fn, what=f"flatness (Riemann = 0) when {label}")
+        return from_outcome(check, outcome, self, detail_prefix=f"flat when {label}")
+
+    # -- asymptotic flatness -------------------------------------------------
+    def _asymptotic(self, geometry):
+        import sympy as sp
+
+        from gravicat.geometry import _run_limited
+        from gravicat.plugins._common import result
+
+        check = f"{self.name}:asymptotically-flat"
+        spec = geometry.spec
+        names = {str(c): c for c in spec.coords}
+        radial = next((names[n] for n in RADIAL if n in names), None)
+        if radial is None:
+            return result(
+                check, "skipped", "none", f"no radial coordinate (one of {', '.join(RADIAL)}) in this chart", self
+            )
+        time_i = 0
+        gtt = sp.sympify(spec.metric[time_i, time_i])
+        mass = next((p for p in spec.params if str(p) in MASS), None)
+        eps = sp.Dummy("eps", positive=True)
+
+        def expand():
+            e = gtt.subs(radial, 1 / eps)
+            ser = sp.series(e, eps, 0, 2).removeO()
+            c0 = sp.simplify(ser.coeff(eps, 0))
+            c1 = sp.simplify(ser.coeff(eps, 1))
+            return c0, c1
+
+        res = _expand_flint(geometry, time_i, radial)
+        err = None
+        if res is None:
+            res, err = _run_limited(expand, geometry.budget)
+        if err:
+            return result(check, "inconclusive", "none", f"series of g_tt in 1/{radial} not computed ({err})", self)
+        c0, c1 = res
+        if sp.simplify(c0 + 1) != 0:
+            return result(
+                check,
+                "fail",
+                "symbolic",
+                f"g_tt -> {c0} as {radial} -> oo, not -1",
+                self,
+                counterexample={"point": {str(radial): "oo"}, "component": "g_tt + 1", "residual": sp.sstr(c0 + 1)},
+            )
+        if mass is not None:
+            if sp.simplify(c1 - 2 * mass) != 0:
+                return result(
+                    check,
+                    "fail",
+                    "symbolic",
+                    f"g_tt = -1 + ({c1})/{radial} + O(1/{radial}^2), expected -1 + 2*{mass}/{radial}",
+                    self,
+                    counterexample={
+                        "point": {str(radial): "oo"},
+                        "component": f"{radial}*(g_tt + 1)",
+                        "residual": sp.sstr(sp.simplify(c1 - 2 * mass)),
+                    },
+                )
+            return result(
+                check, "pass", "symbolic", f"g_tt = -(1 - 2*{mass}/{radial} + O(1/{radial}^2)) as {radial} -> oo", self
+            )
+        return result(
+            check,
+            "pass",
+            "symbolic",
+            f"g_tt = -1 + ({c1})/{radial} + O(1/{radial}^2) as {radial} -> oo (mass {sp.sstr(c1 / 2)}; no parameter "
+            f"named {' or '.join(MASS)} to compare with)",
+            self,
+        )
+
+
+@hookimpl
+def register_verifiers():
+    return [LimitsCheck()]
