@@ -1,7 +1,128 @@
-"""Commands of this group are being written; the module is wired into the CLI already."""
+"""`gravicat probe`: integrate a timelike geodesic with the exported Python code and report drifts."""
 
 from __future__ import annotations
 
+from pathlib import Path
+from typing import Annotated
+
 import typer
 
+from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._output import emit_json, emit_table
+from gravicat.errors import CheckFailed, NotFound
+
 app = typer.Typer()
+
+
+def subject_with_checks(app_ctx: AppContext, arg: str):
+    """(document, export context): a metric file (no stored checks) or a catalogue entry (its stored checks)."""
+    from gravicat.metricfile import load_file
+
+    path = Path(arg)
+    if path.exists() or path.suffix.lower() in (".toml", ".json"):
+        doc = load_file(path, app_ctx.plugins)
+        return doc, {"revision": doc.hash, "checks": [], "source": str(path)}
+    from gravicat import store
+
+    with app_ctx.transaction() as session:
+        rev = store.revision(session, arg)
+        doc = store.document_of(rev)
+        context = {"revision": rev.hash, "checks": [store.record_to_json(r) for r in store.results_for(session, rev)],
+                   "source": "catalogue"}
+    return doc, context
+
+
+@app.command("probe")
+@reports_errors
+def probe(
+    ctx: typer.Context,
+    subject: Annotated[str, typer.Argument(help="Metric file or entry id.", show_default=False)],
+    start: Annotated[str, typer.Option("--from", help="Start point, e.g. r=10,theta=pi/2 (coordinates the metric "
+                                                     "does not depend on default to 0).", show_default=False)],
+    chart: Annotated[str | None, typer.Option("--chart", help="Chart (default: the first).")] = None,
+    params: Annotated[str | None, typer.Option("--params", help="Parameter values, e.g. M=1,a=0.9 (default: the "
+                                                                "file's defaults).")] = None,
+    orbit: Annotated[str, typer.Option("--orbit", help="circular, radial or custom.")] = "circular",
+    direction: Annotated[str, typer.Option("--direction", help="prograde or retrograde (circular orbits).")]
+    = "prograde",
+    velocity: Annotated[str | None, typer.Option("--velocity", help="Spatial components u^i, e.g. r=0,phi=0.04 "
+                                                                    "(u^t follows from g(u,u) = -1).")] = None,
+    azimuth: Annotated[str | None, typer.Option("--azimuth", help="The azimuthal coordinate (default: phi).")]
+    = None,
+    tau: Annotated[float | None, typer.Option("--tau", help="Proper time to integrate over.")] = None,
+    orbits: Annotated[float | None, typer.Option("--orbits", help="Number of orbits (circular; default 10).")]
+    = None,
+    rtol: Annotated[float, typer.Option("--rtol", help="Relative tolerance of the integrator.")] = 1e-12,
+    atol: Annotated[float, typer.Option("--atol", help="Absolute tolerance of the integrator.")] = 1e-12,
+    max_drift: Annotated[float | None, typer.Option("--max-drift", help="Exit 1 if the normalisation or a "
+                                                                        "conserved momentum drifts more.")] = None,
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")] = False,
+) -> None:
+    """Integrate a timelike geodesic with the exported Python code; report the drift of g(u,u) + 1, E and L."""
+    from gravicat.probe import probe as run_probe
+    from gravicat.registry import exporters
+
+    app_ctx = app_context(ctx)
+    doc, context = subject_with_checks(app_ctx, subject)
+    exporter = exporters(app_ctx.plugins).get("python")
+    if exporter is None:
+        raise NotFound("the probe runs the code of the 'python' export target, which is not loaded "
+                       "(see 'gravicat plugins')")
+    report = run_probe(doc, exporter, chart=chart, params=params, start=start, orbit=orbit, direction=direction,
+                       velocity=velocity, azimuth=azimuth, tau=tau, orbits=orbits, rtol=rtol, atol=atol,
+                       context=context)
+    problems = _problems(report, max_drift)
+    if as_json:
+        emit_json(report)
+        if problems:
+            raise typer.Exit(1)
+        return
+    _print(report)
+    if problems:
+        raise CheckFailed(f"{doc.id}:{report['chart']}: {problems[0]}")
+
+
+def _problems(report, max_drift) -> list[str]:
+    out = []
+    if report["termination"] == "failed":
+        out.append(f"the integration failed: {report['detail']}")
+    if max_drift is not None:
+        drift = report["drift"]
+        worst = [("normalisation", drift["normalisation"])]
+        worst += [(f"p_{k}", v["max_rel_change"] if v["max_rel_change"] is not None else v["max_abs_change"])
+                  for k, v in drift["conserved"].items()]
+        for name, value in worst:
+            if value > max_drift:
+                out.append(f"drift of {name} {value:.3g} exceeds --max-drift {max_drift:g}")
+    return out
+
+
+def _print(r) -> None:
+    coords = list(r["start"])
+    typer.echo(f"{r['metric']} / {r['chart']} (revision {r['revision'][:12]}, status {r['status']}); "
+               f"{r['code']}")
+    if r["parameters"]:
+        typer.echo("parameters: " + ", ".join(f"{k} = {v:.15g}" for k, v in r["parameters"].items()))
+    typer.echo(f"orbit: {r['orbit']} from " + ", ".join(f"{k}={v:.15g}" for k, v in r["start"].items()))
+    typer.echo("u = (" + ", ".join(f"{v:.15g}" for v in r["velocity"].values()) + f") in ({', '.join(coords)})")
+    if "circular" in r:
+        c = r["circular"]
+        parts = [f"{k} = {v:.15g}" for k, v in c.items() if isinstance(v, float) and k != "orbits"]
+        typer.echo(f"circular ({c['direction']}): " + ", ".join(parts))
+    typer.echo(f"{r['termination']}: {r['detail']}; {r['steps']} steps, {r['rhs_evaluations']} evaluations "
+               f"(DOP853, rtol {r['integrator']['rtol']:g}, atol {r['integrator']['atol']:g})")
+    d = r["drift"]
+    rows = [["g(u,u) + 1", "", f"{d['normalisation']:.3e}", ""]]
+    for name, v in d["conserved"].items():
+        label = f"p_{name}"
+        if name == coords[0]:
+            label = f"energy E = -p_{name}"
+        elif name == r["azimuth"]:
+            label = f"angular momentum L = p_{name}"
+        rel = "" if v["max_rel_change"] is None else f"{v['max_rel_change']:.3e}"
+        value = -v["initial"] if name == coords[0] else v["initial"]
+        rows.append([label, f"{value:.15g}", f"{v['max_abs_change']:.3e}", rel])
+    for name, v in d.get("coordinates", {}).items():
+        rows.append([f"{name} (circular orbit)", f"{r['start'][name]:.15g}", "", f"{v:.3e}"])
+    typer.echo(f"drift over {r['samples']} samples up to tau = {r['tau']:.12g}:")
+    emit_table(rows, ["quantity", "value", "max abs change", "max rel change"])

@@ -1,0 +1,319 @@
+"""Geodesic probe: integrate a timelike geodesic with the exported Python code and measure drift.
+
+What a simulation relies on, measured on the exported code itself: the probe asks the
+``python`` export target for the chart's module (the very text ``gravicat export --to python``
+writes), loads it, and integrates
+
+    dx^a/dtau = u^a,    du^a/dtau = -Gamma^a_bc u^b u^c
+
+with scipy's ``solve_ivp`` (DOP853, rtol = atol = 1e-12 by default) over a proper time, using the
+module's ``christoffel``. At every step and on the dense output in between (at least 2000
+points, 64 per orbit) it measures the drift of the normalisation g(u, u) + 1 and of the
+momenta p_k = g_ka u^a conjugate to the coordinates the metric does not depend on (Killing
+vectors d/dx^k): the energy E = -p_t when the time coordinate is one of them and the angular
+momentum L = p_phi for the azimuth. The integration stops just before the orbit reaches the
+edge of the chart's domain (a horizon, an axis: an event on the domain margins, 1e-6 inside).
+
+Orbits:
+
+* ``circular``: u = u^t (d_t + Omega d_phi) at the start point; Omega solves
+  d_i g_tt + 2 Omega d_i g_tphi + Omega^2 d_i g_phiphi = 0 for every coordinate x^i the metric
+  depends on (the geodesic equation for such a velocity), prograde Omega > 0 or retrograde
+  Omega < 0; u^t = 1/sqrt(-(g_tt + 2 Omega g_tphi + Omega^2 g_phiphi)).
+* ``radial``: every spatial component zero (released from rest in the chart), or the single
+  component given with ``velocity``;
+* ``custom``: the spatial components given with ``velocity``.
+
+In every case u^t is fixed by g(u, u) = -1 (the future root, u^t > 0).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+import types
+from collections.abc import Mapping
+from typing import Any
+
+from gravicat.errors import InputError
+
+ORBITS = ("circular", "radial", "custom")
+DIRECTIONS = ("prograde", "retrograde")
+DEFAULT_ORBITS = 10
+DEFAULT_TAU = 100.0
+EDGE = 1e-6  # stop this close (relative to 1 + max|x0|) to the edge of the chart's domain
+MIN_SAMPLES, SAMPLES_PER_ORBIT, MAX_SAMPLES = 2000, 64, 20000  # points where the drifts are measured
+_MODULES: dict = {}
+
+
+def exported_module(document, exporter, context: Mapping[str, Any]):
+    """The module the python exporter writes for this chart, loaded (cached per revision and chart)."""
+    key = (document.hash, context.get("chart"), exporter.name, exporter.version)
+    if key not in _MODULES:
+        text = exporter.export(document, {**context, "params": None, "allow_unverified": True})
+        module = types.ModuleType(f"gravicat_probe_{document.id.replace('-', '_')}")
+        # the text is what the installed exporter generated from whitelist-parsed expressions
+        exec(compile(text, f"<gravicat export {document.id}:{context.get('chart')}>", "exec"),  # noqa: S102
+             module.__dict__)
+        if len(_MODULES) > 16:
+            _MODULES.clear()
+        _MODULES[key] = module
+    return _MODULES[key]
+
+
+def _killing(spec) -> list[int]:
+    """Indices of the coordinates the metric does not depend on."""
+    free = set().union(*(e.free_symbols for e in spec.metric))
+    return [i for i, c in enumerate(spec.coords) if c not in free]
+
+
+def _float_values(values: Mapping[Any, Any]) -> dict[str, float]:
+    return {str(k): float(v) for k, v in values.items()}
+
+
+def probe(document, exporter, *, chart: str | None = None, params=None, start: str = "", orbit: str = "circular",
+          direction: str = "prograde", velocity: str | None = None, azimuth: str | None = None,
+          tau: float | None = None, orbits: float | None = None, rtol: float = 1e-12, atol: float = 1e-12,
+          context: Mapping[str, Any] | None = None) -> dict[str, Any]:
+    """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``)."""
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    from gravicat.codegen import chart_name, numeric_parameters, parse_assignments, provenance
+    from gravicat.metricfile import build_chart
+
+    if orbit not in ORBITS:
+        raise InputError("--orbit", None, f"'{orbit}' is not one of {', '.join(ORBITS)}")
+    if direction not in DIRECTIONS:
+        raise InputError("--direction", None, f"'{direction}' is not one of {', '.join(DIRECTIONS)}")
+    for name, value in (("--rtol", rtol), ("--atol", atol)):
+        if not (0 < value < 1):
+            raise InputError(name, None, f"{value} is not a tolerance between 0 and 1")
+    context = dict(context or {"revision": document.hash, "checks": []})
+    chart = chart_name(document, {"chart": chart})
+    context["chart"] = chart
+    spec = build_chart(document, chart)
+    if spec.functions:
+        raise InputError(document.source, f"charts.{chart}.functions",
+                         f"the metric depends on the arbitrary function(s) {', '.join(map(str, spec.functions))}; "
+                         f"the probe needs numeric code")
+    values = numeric_parameters(document, spec, params)
+    pvals = _float_values(values)
+    coords = [str(c) for c in spec.coords]
+    n = len(coords)
+    killing = _killing(spec)
+    env = {str(k): v for k, v in values.items()}
+    given = parse_assignments(start, "--from", {c: c for c in coords}, env, kind="coordinate of this chart")
+    missing = [coords[i] for i in range(n) if i not in killing and coords[i] not in given]
+    if missing:
+        raise InputError("--from", missing[0], f"give a value for {missing[0]} (the metric depends on it)")
+    x0 = np.array([float(given.get(c, 0)) for c in coords])
+    module = exported_module(document, exporter, context)
+    order = tuple(module.PARAMETERS)
+    p = tuple(pvals[name] for name in order)
+    if not bool(module.in_domain(x0, p)):
+        raise InputError("--from", None, f"the point {_show(coords, x0)} is outside the domain of chart {chart} "
+                                         f"({'; '.join(module.DOMAIN)})")
+    g0 = module.metric(x0, p)
+    spatial = {c: i for i, c in enumerate(coords) if i > 0}
+    result: dict[str, Any] = {}
+    if orbit == "circular" and 0 not in killing:
+        raise InputError("--orbit", None, f"circular orbits need a metric independent of {coords[0]} "
+                                          f"(chart {chart} is not stationary in these coordinates)")
+    if orbit == "circular" or azimuth:
+        psi = _azimuth(coords, killing, azimuth)
+    else:
+        try:
+            psi = _azimuth(coords, killing, None)
+        except InputError:  # no azimuth: L is not reported
+            psi = None
+    if orbit == "circular":
+        if velocity:
+            raise InputError("--velocity", None, "a circular orbit fixes the velocity; use --orbit custom")
+        u0, omega = _circular(module, x0, p, g0, killing, psi, direction, coords)
+        result["circular"] = {f"u^{coords[0]}": float(u0[0]), f"u^{coords[psi]}": float(u0[psi]),
+                              "Omega": float(omega), "direction": direction}
+    else:
+        comps = parse_assignments(velocity or "", "--velocity", spatial, env, kind="spatial coordinate") \
+            if velocity else {}
+        if orbit == "radial" and len(comps) > 1:
+            raise InputError("--velocity", None, "a radial orbit has at most one spatial component; "
+                                                 "use --orbit custom")
+        if orbit == "custom" and not comps:
+            raise InputError("--velocity", None, "give the spatial components, e.g. r=0,phi=0.04")
+        u0 = np.zeros(n)
+        for name, value in comps.items():
+            u0[spatial[name]] = float(value)
+        u0[0] = _time_component(g0, u0, coords)
+    if tau is None:
+        if orbit == "circular":
+            count = DEFAULT_ORBITS if orbits is None else orbits
+            tau = count * 2 * math.pi / abs(u0[psi])
+        elif orbits is not None:
+            raise InputError("--orbits", None, "only a circular orbit is counted in orbits; give --tau")
+        else:
+            tau = DEFAULT_TAU
+    elif orbits is not None:
+        raise InputError("--orbits", None, "give --tau or --orbits, not both")
+    if not (tau > 0 and math.isfinite(tau)):
+        raise InputError("--tau", None, f"{tau} is not a positive proper time")
+
+    def rhs(_t, y):
+        gam = module.christoffel(y[:n], p)
+        u = y[n:]
+        return np.concatenate([u, -(gam @ u) @ u])
+
+    events = []
+    edge = EDGE * (1.0 + float(np.max(np.abs(x0))))
+    if len(module.DOMAIN):
+        def leaves(_t, y):
+            return float(np.min(module.domain_margins(y[:n], p))) - edge
+
+        leaves.terminal, leaves.direction = True, -1
+        events.append(leaves)
+    started = time.perf_counter()
+    with np.errstate(all="ignore"):
+        sol = solve_ivp(rhs, (0.0, tau), np.concatenate([x0, u0]), method="DOP853", rtol=rtol, atol=atol,
+                        events=events or None, dense_output=True)
+    seconds = time.perf_counter() - started
+    if sol.status == -1:
+        termination, detail = "failed", f"{sol.message} (at tau = {sol.t[-1]:.12g}, {_show(coords, sol.y[:n, -1])})"
+    elif sol.status == 1:
+        k = int(np.argmin(module.domain_margins(sol.y[:n, -1], p)))
+        termination = "domain-edge"
+        detail = (f"reached the edge of the chart's domain ({module.DOMAIN[k]}) at tau = {sol.t[-1]:.12g}, "
+                  f"{_show(coords, sol.y[:n, -1])}")
+    else:
+        termination, detail = "completed", f"integrated to tau = {sol.t[-1]:.12g}"
+    # diagnostics at every step and on the dense output in between
+    count = int(min(MAX_SAMPLES, max(MIN_SAMPLES, SAMPLES_PER_ORBIT * (orbits or 0))))
+    taus = np.union1d(sol.t, np.linspace(0.0, sol.t[-1], count)) if sol.sol is not None else sol.t
+    states = sol.sol(taus) if sol.sol is not None else sol.y
+    xs, us = states[:n].T, states[n:].T
+    with np.errstate(all="ignore"):
+        gs = module.metric(xs, p)
+    norm = np.einsum("ka,kab,kb->k", us, gs, us) + 1.0
+    momenta = np.einsum("kab,kb->ka", gs, us)
+    conserved = {}
+    for i in killing:
+        series = momenta[:, i]
+        change = np.max(np.abs(series - series[0]))
+        conserved[coords[i]] = {"initial": float(series[0]), "max_abs_change": float(change),
+                                "max_rel_change": float(change / abs(series[0])) if series[0] != 0 else None}
+    drift: dict[str, Any] = {"normalisation": float(np.max(np.abs(norm))), "conserved": conserved}
+    if 0 in killing:
+        drift["energy"] = conserved[coords[0]]["max_rel_change"]
+    if psi is not None and psi in killing:
+        drift["angular_momentum"] = conserved[coords[psi]]["max_rel_change"]
+    if orbit == "circular":
+        drift["coordinates"] = {coords[i]: float(np.max(np.abs(xs[:, i] - x0[i])) / max(abs(x0[i]), 1e-300))
+                                for i in range(n) if i not in killing}
+        elapsed = xs[-1, 0] - xs[0, 0]
+        result["circular"]["Omega_measured"] = float((xs[-1, psi] - xs[0, psi]) / elapsed) if elapsed else None
+        result["circular"]["orbits"] = float(abs(xs[-1, psi] - xs[0, psi]) / (2 * math.pi))
+    prov = provenance(document, context, exporter, chart)
+    out = {
+        "metric": document.id,
+        "chart": chart,
+        "revision": prov.revision,
+        "status": prov.status,
+        "code": f"exporter {exporter.name} {exporter.version}, inverse {module.INVERSE}",
+        "parameters": {name: pvals[name] for name in pvals},
+        "orbit": orbit,
+        "azimuth": coords[psi] if psi is not None else None,
+        "start": dict(zip(coords, map(float, x0), strict=True)),
+        "velocity": dict(zip(coords, map(float, u0), strict=True)),
+        "end": dict(zip(coords, map(float, sol.y[:n, -1]), strict=True)),
+        "extent": {c: [float(np.min(xs[:, i])), float(np.max(xs[:, i]))] for i, c in enumerate(coords)},
+        **result,
+        "tau_requested": float(tau),
+        "tau": float(sol.t[-1]),
+        "termination": termination,
+        "detail": detail,
+        "steps": int(len(sol.t) - 1),
+        "samples": int(len(taus)),
+        "rhs_evaluations": int(sol.nfev),
+        "integrator": {"method": "DOP853", "rtol": rtol, "atol": atol},
+        "drift": drift,
+        "seconds": round(seconds, 3),
+    }
+    if 0 in killing:
+        out["energy"] = -conserved[coords[0]]["initial"]
+    if psi is not None:
+        out["angular_momentum"] = conserved[coords[psi]]["initial"]
+    return out
+
+
+def _show(coords, x) -> str:
+    return ", ".join(f"{c}={v:g}" for c, v in zip(coords, x, strict=True))
+
+
+def _azimuth(coords, killing, name) -> int:
+    if name is not None:
+        if name not in coords[1:]:
+            raise InputError("--azimuth", name, f"'{name}' is not a spatial coordinate ({', '.join(coords[1:])})")
+        i = coords.index(name)
+        if i not in killing:
+            raise InputError("--azimuth", name, f"the metric depends on {name}: it is not an azimuth")
+        return i
+    candidates = [i for i in killing if i > 0]
+    for i in candidates:
+        if coords[i] in ("phi", "varphi"):
+            return i
+    if len(candidates) == 1:
+        return candidates[0]
+    raise InputError("--azimuth", None, "name the azimuthal coordinate (the metric must not depend on it); "
+                                        f"candidates: {', '.join(coords[i] for i in candidates) or 'none'}")
+
+
+def _time_component(g, u, coords) -> float:
+    """u^t > 0 with g(u, u) = -1, the spatial components given."""
+    a = g[0, 0]
+    b = 2 * float(g[0, 1:] @ u[1:])
+    c = float(u[1:] @ g[1:, 1:] @ u[1:]) + 1.0
+    if a == 0:
+        roots = [-c / b] if b != 0 else []
+    else:
+        disc = b * b - 4 * a * c
+        roots = [] if disc < 0 else [(-b + s * math.sqrt(disc)) / (2 * a) for s in (1, -1)]
+    future = [r for r in roots if r > 0]
+    if not future:
+        raise InputError("--velocity", None, f"no future-directed timelike velocity has these components "
+                                             f"(g_{coords[0]}{coords[0]} = {a:.6g} here)")
+    return min(future) if a > 0 else max(future)
+
+
+def _circular(module, x0, p, g0, killing, psi, direction, coords):
+    """(u0, Omega) of the circular geodesic through x0, or a one-line error."""
+    import numpy as np
+
+    dg = module.metric_derivatives(x0, p)
+    n = len(coords)
+    others = [i for i in range(1, n) if i not in killing]
+    eqs = [(dg[i, psi, psi], 2 * dg[i, 0, psi], dg[i, 0, 0]) for i in others]
+    scale = max((max(abs(c) for c in eq) for eq in eqs), default=0.0)
+    if scale == 0:
+        raise InputError("--from", None, "the metric does not change here: every Omega is a geodesic "
+                                         "(flat chart?); use --orbit custom")
+    main = max(range(len(eqs)), key=lambda k: max(abs(c) for c in eqs[k]))
+    a, b, c = eqs[main]
+    if abs(a) <= 1e-14 * scale:
+        roots = [-c / b] if abs(b) > 1e-14 * scale else []
+    else:
+        disc = b * b - 4 * a * c
+        roots = [] if disc < 0 else [(-b + s * math.sqrt(disc)) / (2 * a) for s in (1, -1)]
+    found = []
+    for om in roots:
+        ok = all(abs(e[0] * om * om + e[1] * om + e[2]) <= 1e-8 * scale * max(1.0, om * om) for e in eqs)
+        v = g0[0, 0] + 2 * om * g0[0, psi] + om * om * g0[psi, psi]
+        if ok and v < 0 and ((om > 0) == (direction == "prograde")) and om != 0:
+            found.append((om, v))
+    if not found:
+        where = _show(coords, x0)
+        raise InputError("--from", None, f"no timelike {direction} circular geodesic at {where} "
+                                         f"(inside the photon orbit, off the plane of symmetry, or no such orbit)")
+    om, v = found[0]
+    u = np.zeros(n)
+    u[0] = 1.0 / math.sqrt(-v)
+    u[psi] = om * u[0]
+    return u, om
