@@ -174,16 +174,9 @@ def stored_versions(session: Session, rev: Revision) -> set[tuple[str, str, str]
 
 def status_by_revision(session: Session, revision_ids: list[int]) -> dict[int, str]:
     """Overall status of each revision from its newest result per (chart, check); absent = unverified."""
-    from gravicat.checks import worst
+    from gravicat.search import overall_status
 
-    latest: dict[int, dict[tuple[str, str], str]] = {}
-    if revision_ids:
-        rows = session.execute(select(CheckRecord.revision_id, CheckRecord.chart, CheckRecord.check,
-                                      CheckRecord.status).where(CheckRecord.revision_id.in_(revision_ids))
-                               .order_by(CheckRecord.id))
-        for rid, chart, check, status in rows:
-            latest.setdefault(rid, {})[(chart, check)] = status
-    return {rid: worst(v.values()).value for rid, v in latest.items()}
+    return overall_status(session, revision_ids)
 
 
 def record_to_json(row: CheckRecord) -> dict:

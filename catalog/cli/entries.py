@@ -98,20 +98,17 @@ def list_entries(
     as_json: JsonOpt = False,
 ) -> None:
     """List catalogue entries (latest revisions), filtered."""
-    from gravicat import store
     from gravicat.metricfile import FIELD_EQUATIONS
+    from gravicat.search import Query, find_entries
 
     if equations is not None and equations not in FIELD_EQUATIONS:
         raise InputError("--equations", None, f"'{equations}' is not one of {', '.join(FIELD_EQUATIONS)}")
-    statuses = ("pass", "fail", "inconclusive", "unverified", "error", "skipped")
-    if status is not None and status not in statuses:
-        raise InputError("--status", None, f"'{status}' is not one of {', '.join(statuses)}")
+
     with app_context(ctx).transaction() as session:
-        revs = store.list_entries(session, tag=tag, equations=equations, param=param, search=search)
-        found = store.status_by_revision(session, [r.id for r in revs])
-        rows = [_list_row(r, found.get(r.id, "unverified")) for r in revs]
-    if status is not None:
-        rows = [r for r in rows if r["status"] == status]
+        page = find_entries(session, Query(tags=(tag,) if tag else (), equations=(equations,) if equations else (),
+                                           params=(param,) if param else (), text=search, status=status,
+                                           limit=None))
+        rows = [_list_row(h.revision, h.status) for h in page.hits]
     if as_json:
         emit_json(rows)
         return
