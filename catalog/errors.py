@@ -11,6 +11,7 @@ a bug and keeps its traceback.
     ├── NotFound            no such entry, chart, revision or export target
     ├── DatabaseError       the database cannot be opened or written (URL hidden of passwords)
     │   └── SchemaOutdated  the schema is older than this version and may not be upgraded here
+    ├── Conflict            another writer stored the same entry at the same moment; nothing was written
     ├── PluginError         a plugin failed to load or broke the hook contract
     └── CheckFailed (exit 1) a command ran fine and found a problem
 """
@@ -55,6 +56,11 @@ class DatabaseError(CatalogError):
 
 class SchemaOutdated(DatabaseError):
     """The database schema is older than this version needs."""
+
+
+class Conflict(CatalogError):
+    """A concurrent writer changed the same entry first (optimistic concurrency on the revision
+    parent); this command wrote nothing and can simply be run again."""
 
 
 class PluginError(CatalogError):

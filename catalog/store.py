@@ -14,7 +14,7 @@ from pathlib import Path
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
-from gravicat.errors import InputError, NotFound
+from gravicat.errors import Conflict, InputError, NotFound
 from gravicat.metricfile import MetricDocument, validate
 from gravicat.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
 
@@ -45,13 +45,39 @@ def head(session: Session, slug: str) -> Revision | None:
 
 def add_document(session: Session, doc: MetricDocument, *, author: str, message: str = "",
                  tool_version: str = "") -> Stored:
-    """Store ``doc`` as a new entry, or as a new revision when its content changed."""
+    """Store ``doc`` as a new entry, or as a new revision when its content changed.
+
+    Concurrent writers get a well-defined order, the same on SQLite and PostgreSQL: the
+    entry row is locked before its head is read (``SELECT ... FOR UPDATE``; SQLite
+    serialises whole write transactions), so of two writers of one entry the second
+    waits and stores its document as the next revision, with the first one's as parent.
+    Two writers creating the same new entry race on its unique id: the loser re-reads
+    the entry and stores its document as revision 2 (or finds it unchanged). The unique
+    (entry, parent) and (entry, number) constraints stay the final guard: a write that
+    still collides raises :class:`~gravicat.errors.Conflict` and writes nothing.
+    """
+    from sqlalchemy.exc import IntegrityError
+
+    for attempt in (1, 2):
+        try:
+            with session.begin_nested():
+                return _add_document(session, doc, author=author, message=message, tool_version=tool_version)
+        except IntegrityError:
+            if attempt == 2:
+                raise Conflict(f"{doc.source}: entry '{doc.id}' was changed by another writer at the same "
+                               "moment; nothing was written, run the command again") from None
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def _add_document(session: Session, doc: MetricDocument, *, author: str, message: str,
+                  tool_version: str) -> Stored:
     digest = doc.hash
-    entry = session.scalars(select(Entry).where(Entry.slug == doc.id)).first()
+    entry = session.scalars(select(Entry).where(Entry.slug == doc.id).with_for_update()).first()
     parent = None
     if entry is None:
         entry = Entry(slug=doc.id)
         session.add(entry)
+        session.flush()  # a concurrent creator of the same id makes this fail (and the caller retry)
         number, action = 1, "new"
     else:
         parent = head(session, doc.id)

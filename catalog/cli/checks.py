@@ -89,12 +89,15 @@ def verify(
     all_entries: Annotated[bool, typer.Option("--all", help="Every entry of the catalogue.")] = False,
     force: Annotated[bool, typer.Option("--force", help="Recompute even when results are stored.")] = False,
     jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
+    enqueue: Annotated[bool, typer.Option("--enqueue", help="Only record the work as jobs for 'gravicat worker' "
+                                                            "(on this or other machines).")] = False,
     budget: BudgetOpt = 20.0,
     as_json: JsonOpt = False,
 ) -> None:
     """Verify catalogue entries and store the results against their revision.
 
     Results already stored for the same revision hash and verifier version are reused unless --force.
+    With --enqueue, one job per (revision, chart, verifier version) needing work is recorded instead.
     """
     from gravicat import store
     from gravicat.registry import verifiers
@@ -104,6 +107,18 @@ def verify(
     if not entries and not all_entries:
         raise InputError("ID", None, "name entries to verify, or give --all")
     chosen = select_verifiers(verifiers(app_ctx.plugins), None)
+    if enqueue:
+        from gravicat import queue
+
+        if jobs != 1:
+            raise InputError("--jobs", None, "does not apply with --enqueue; give it to 'gravicat worker'")
+        with app_ctx.transaction() as session:
+            made = queue.enqueue_entries(session, entries, chosen, force=force, budget=budget)
+        if as_json:
+            emit_json(made.to_json())
+        else:
+            typer.echo(made.describe())
+        return
     units, keys = [], {}
     with app_ctx.transaction() as session:
         revisions = ([store.revision(session, e) for e in entries] if entries
