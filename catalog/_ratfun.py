@@ -6,20 +6,35 @@ Every expression of a chart is mapped to an element of a field
 
 where the ``b_j`` are *base generators* (coordinates, parameters, values of
 arbitrary functions and their partial derivatives, ``cos`` of an angle,
-``exp``, ``log`` and symbolic powers, the constant ``pi``), held in one
+``exp``, ``log``, ``LambertW`` (principal branch) and symbolic powers, the
+constants ``pi`` and ``e``, opaque sub-expressions), held in one
 ``fmpz_mpoly`` context, and the ``s_i`` are *square-root generators* with
-``s_i**2 = R_i`` for a radicand ``R_i`` in ``Q(b)`` (``sqrt(...)``, half
-integer powers, and ``sin`` of an angle, for which ``s**2 = 1 - cos**2``).
+``s_i**2 = R_i`` (``sqrt(...)``, half integer powers, and ``sin`` of an
+angle, for which ``s**2 = 1 - cos**2``). A radicand ``R_i`` is in ``Q(b)``, or,
+for a nested root such as ``sqrt(w + sqrt(v))``, in ``Q(b)[s_1..s_{i-1}]``
+(a tower of quadratic extensions).
 
 An element is kept as ``sum_m c_m * s^m / d``: ``m`` runs over bit masks of
 square-root generators, ``c_m`` and ``d`` are integer polynomials in the base
-generators, ``d`` is free of square roots (denominators are rationalised) and
-the fraction is reduced by gcd. Products reduce ``s_i**2`` to ``R_i`` at
-once, so the representation never grows in the square roots.
+generators, ``d`` is free of square roots (denominators are rationalised,
+highest root first) and the fraction is reduced by gcd. Products reduce
+``s_i**2`` to ``R_i`` at once, so the representation never grows in the
+square roots.
 
 Each generator carries its derivation rule for every chart coordinate
 (``d/dtheta cos(theta) = -sin(theta)``, ``d/dt a = a_t``, ``d exp(w) = exp(w) dw``,
-``d sqrt(R) = sqrt(R) dR / (2R)``...), so derivatives are exact and stay in K.
+``d sqrt(R) = sqrt(R) dR / (2R)``, ``d W(z) = W dz / (z (1 + W))``...), so
+derivatives are exact and stay in K. ``exp(k W(z))`` is rewritten as
+``(z / W(z))**k``; ``W(u exp(u))`` becomes ``u`` where the identity is exact
+and ``u >= -1`` follows from the region (:func:`simplify_lambertw`).
+
+Opaque sub-expressions (:func:`find_aliases`): a sum of several
+coordinate-dependent roots or transcendental functions, e.g.
+``1 + m1/sqrt(R1) + m2/sqrt(R2)``, is costly as an element (rationalising it
+multiplies its conjugates). Such a sum is carried as a function of the
+coordinates with generic partial derivatives (like a declared function
+``a(t)``); :meth:`Field.is_zero` substitutes the explicit derivatives
+(:meth:`Field.expand`) before testing, so zero tests stay exact.
 
 Soundness: generators are treated as independent indeterminates, except for
 the square-root relations, which are applied. An element that reduces to zero
@@ -27,9 +42,10 @@ is therefore identically zero. A non-zero result is only a definite non-zero
 when the chart uses no generator with a hidden relation (see
 :attr:`Field.complete`); otherwise callers must not call it a failure.
 
-Anything else (``Abs``, ``sign``, ``LambertW``, inverse trigonometric
-functions, cube roots, exponents depending on coordinates) raises
-:class:`Unsupported`, and the caller falls back to the pure sympy path.
+Anything else (``Abs``, ``sign``, other branches of ``LambertW``, inverse
+trigonometric functions, cube roots of sums, exponents depending on
+coordinates) raises :class:`Unsupported`, and the caller falls back to the
+pure sympy path.
 """
 
 from __future__ import annotations
@@ -83,17 +99,19 @@ class BaseGen:
 
 
 class SqrtGen:
-    """A square-root generator ``s`` with ``s**2 = num/den`` (both base polynomials)."""
+    """A square-root generator ``s`` with ``s**2 = num/den`` (both base polynomials), or, for a
+    nested root (``tower``), ``s**2 = radicand``, an element that uses earlier square roots."""
 
-    __slots__ = ("bit", "num", "den", "sym", "trig", "radicand")
+    __slots__ = ("bit", "num", "den", "sym", "trig", "radicand", "tower")
 
-    def __init__(self, bit, num, den, sym, trig=None):
+    def __init__(self, bit, num, den, sym, trig=None, tower=False):
         self.bit = bit
-        self.num = num
+        self.num = num  # None for a nested root
         self.den = den
         self.sym = sym  # sympy expression (sqrt(R) or sin(w))
         self.trig = trig  # the BaseGen of the matching cos, for sin generators
         self.radicand = None  # Elem, set after creation
+        self.tower = tower
 
 
 # ---------------------------------------------------------------------------
@@ -199,6 +217,13 @@ class Elem:
             else:
                 ad = a.d
             return F.make_reduced({0: an * bn}, ad * bd)
+        if F.tower_mask:
+            ov = 0
+            for m1 in a.c:
+                for m2 in b.c:
+                    ov |= m1 & m2
+            if ov & F.tower_mask:
+                return F.mul_tower(a, b)
         return F.make(*F.mulc(a.c, b.c, a.d * b.d))
 
     __rmul__ = __mul__
@@ -212,18 +237,16 @@ class Elem:
         # rationalise: multiply by the conjugates until the norm is free of square roots
         n = Elem(F, dict(self.c), F.pone)
         mult = F.one
-        bits = 0
-        for m in n.c:
-            bits |= m
-        for i in range(len(F.sqrts)):
+        # highest root first: a nested root's radicand only uses lower ones
+        for i in reversed(range(len(F.sqrts))):
             bit = 1 << i
-            if not bits & bit:
-                continue
             if not any(m & bit for m in n.c):
                 continue
             conj = Elem(F, {m: (-p if m & bit else p) for m, p in n.c.items()}, n.d)
             mult = mult * conj
             n = n * conj
+            if not n.c:
+                raise ZeroDivisionError("division by an element that is zero (dependent square roots)")
         if not n.is_plain():  # pragma: no cover - only with dependent radicands
             raise Unsupported("could not rationalise a denominator")
         return Elem(F, {0: self.d}, F.pone) * mult * n.inv()
@@ -268,47 +291,68 @@ class Elem:
 
     def evaluate(self, pt):
         """Value at a :class:`Point`: ``fmpq`` when every generator it uses has
-        an exact value there, else an ``arb`` ball."""
+        an exact value there, else an ``arb`` ball (the polynomials are still
+        evaluated exactly in the generators that have exact values)."""
         F = self.F
+        if not self.c:
+            return flint.fmpq(0)
         if self._q is None:
             used, bits = self._needs()
             self._q = [used, bits, None]
         used, bits, qpolys = self._q
-        if not self.c:
-            return flint.fmpq(0)
-        exact = all(pt.base[j] is not None for j in used)
-        if exact:
+        if pt.fill is not None:
+            missing = [j for j in used if pt.abase[j] is None]
+            if missing:
+                with arb_precision():
+                    for j in missing:
+                        pt.fill(j)
+        if qpolys is None:
+            qpolys = ({m: F.to_q(p) for m, p in self.c.items()}, F.to_q(self.d))
+            self._q[2] = qpolys
+        qc, qd = qpolys
+        if all(pt.base[j] is not None for j in used):
+            vals = pt.exact_values()
+            den = qd(*vals)
+            if den == 0:
+                raise ZeroDivisionError("denominator vanishes at the point")
+            sq_exact = True
             i = 0
             m = bits
             while m:
                 if m & 1 and pt.sqrt[i] is None:
-                    exact = False
+                    sq_exact = False
                     break
                 m >>= 1
                 i += 1
-        if exact:
-            if qpolys is None:
-                qpolys = ({m: F.to_q(p) for m, p in self.c.items()}, F.to_q(self.d))
-                self._q[2] = qpolys
-            qc, qd = qpolys
-            vals = [v if v is not None else flint.fmpq(0) for v in pt.base]
-            den = qd(*vals)
-            if den == 0:
-                raise ZeroDivisionError("denominator vanishes at the point")
-            total = flint.fmpq(0)
-            for m, p in qc.items():
-                v = p(*vals)
-                if m:
-                    v = v * pt.sqrt_product(m, True)
-                total += v
-            return total / den
+            if sq_exact:
+                total = flint.fmpq(0)
+                for m, p in qc.items():
+                    v = p(*vals)
+                    if m:
+                        v = v * pt.sqrt_product(m, True)
+                    total += v
+                return total / den
+            with arb_precision():
+                total = flint.arb(0)
+                for m, p in qc.items():
+                    v = p(*vals)
+                    if v == 0:
+                        continue
+                    total += flint.arb(v) * pt.sqrt_product(m, False) if m else flint.arb(v)
+                return total / den
+        # some generator has no exact value: substitute the exact ones, then interval arithmetic
         with arb_precision():
-            den = F.eval_arb(self.d, pt.abase)
+            sub = {j: pt.base[j] for j in used if pt.base[j] is not None}
+
+            def ev(q):
+                return F.eval_arb(q.subs(sub) if sub else q, pt.abase)
+
+            den = ev(qd)
             if den.contains(0):
                 raise ZeroDivisionError("denominator not separated from zero at the point")
             total = flint.arb(0)
-            for m, p in self.c.items():
-                v = F.eval_arb(p, pt.abase)
+            for m, p in qc.items():
+                v = ev(p)
                 if m:
                     v = v * pt.sqrt_product(m, False)
                 total += v
@@ -341,7 +385,7 @@ def _scalec(c, f):
 class Point:
     """Values of the generators at one point: exact (``fmpq`` or None) and interval."""
 
-    __slots__ = ("base", "sqrt", "abase", "asqrt", "_prod")
+    __slots__ = ("base", "sqrt", "abase", "asqrt", "_prod", "_vals", "fill")
 
     def __init__(self, base, sqrt, abase, asqrt):
         self.base = base  # fmpq or None (not rational) per base generator
@@ -349,6 +393,14 @@ class Point:
         self.abase = abase  # arb per base generator
         self.asqrt = asqrt  # arb per square-root generator
         self._prod = {}
+        self._vals = None
+        self.fill = None  # computes a generator value on first use (opaque generators)
+
+    def exact_values(self):
+        """The exact values as evaluation arguments (0 stands in for generators without one)."""
+        if self._vals is None:
+            self._vals = [v if v is not None else flint.fmpq(0) for v in self.base]
+        return self._vals
 
     def sqrt_product(self, mask, exact):
         key = (mask, exact)
@@ -383,7 +435,148 @@ def prepare(expr):
         )
     if expr.has(sp.tan, sp.cot, sp.sec, sp.csc):
         expr = expr.replace(lambda e: isinstance(e, (sp.tan, sp.cot, sp.sec, sp.csc)), _trig_via_sin_cos)
+    if expr.has(sp.LambertW):
+        # one generator per argument, whatever form the argument was written in
+        expr = expr.replace(
+            lambda e: isinstance(e, sp.LambertW) and _principal(e), lambda e: sp.LambertW(sp.expand(e.args[0]))
+        )
+    if expr.has(sp.LambertW) and expr.has(sp.exp):
+        # exp(k W(z)) = (z / W(z))**k (W exp(W) = z on every branch), so exp(W) is not a new generator
+        expr = expr.replace(lambda e: isinstance(e, sp.exp) and e.args[0].has(sp.LambertW), _exp_of_lambertw)
     return expr
+
+
+def _exp_of_lambertw(e):
+    rest = []
+    factor = sp.Integer(1)
+    for t in sp.Add.make_args(sp.expand(e.args[0], deep=False)):
+        c, m = t.as_coeff_Mul()
+        if isinstance(m, sp.LambertW) and _principal(m) and c.is_Integer:
+            factor = factor * (m.args[0] / m) ** c
+        else:
+            rest.append(t)
+    return sp.exp(sp.Add(*rest)) * factor
+
+
+def _principal(w) -> bool:
+    return len(w.args) == 1 or w.args[1] == 0
+
+
+def _nonnegative_on(expr, coords, relations) -> bool:
+    """``expr >= 0`` everywhere on the region, shown with sympy's assumptions after writing each
+    coordinate with a one-sided bound ``v > b`` (``v < b``) as ``b + p`` (``b - p``), ``p > 0``."""
+    sub = {}
+    for rel in relations:
+        if rel is sp.true or rel is sp.false or not isinstance(rel, sp.core.relational.Relational):
+            continue
+        for side, other, lower in (
+            (rel.lhs, rel.rhs, rel.rel_op in (">", ">=")),
+            (rel.rhs, rel.lhs, rel.rel_op in ("<", "<=")),
+        ):
+            if side in coords and side not in sub and side not in other.free_symbols:
+                if other.free_symbols & set(coords):
+                    continue
+                p = sp.Dummy("p", positive=True)
+                sub[side] = other + p if lower else other - p
+    try:
+        return bool(sp.together(expr.xreplace(sub)).is_nonnegative)
+    except (TypeError, ValueError):  # pragma: no cover - defensive
+        return False
+
+
+def simplify_lambertw(expr, coords, params, relations):
+    """Replace ``W(u exp(u))`` by ``u`` where that holds: the identity ``W(z) = u`` is checked exactly
+    (``z = u exp(u)`` in a field of its own) and the branch condition ``u >= -1`` of the principal
+    branch is shown on the region (:func:`_nonnegative_on` of ``u + 1``); otherwise ``W`` stays."""
+
+    def rule(w):
+        z = w.args[0]
+        ft = sp.factor_terms(sp.powsimp(z))
+        v = sp.Integer(0)
+        rest = []
+        for f in sp.Mul.make_args(ft):
+            if isinstance(f, sp.exp):
+                v += f.args[0]
+            elif f.is_Pow and f.base is sp.E:
+                v += f.exp
+            else:
+                rest.append(f)
+        if v == 0:
+            return w
+        P = sp.Mul(*rest)
+        try:
+            sub = Field(coords, params, [P - v])
+            same = sub.element(P - v).is_zero()
+        except (Unsupported, ZeroDivisionError):
+            return w
+        if same and _nonnegative_on(v + 1, coords, relations):
+            return v
+        return w
+
+    if not expr.has(sp.LambertW):
+        return expr
+    return expr.replace(lambda e: isinstance(e, sp.LambertW) and _principal(e), rule)
+
+
+def _is_heavy_atom(e, coords) -> bool:
+    """A coordinate-dependent node that is not a rational operation and makes exact arithmetic costly:
+    a fractional power of anything but a single symbol, or a function (exp, tanh, LambertW...) of an
+    argument other than a rational multiple of one coordinate."""
+    if isinstance(e, sp.Pow):
+        return not e.exp.is_Integer and not e.base.is_Symbol
+    if isinstance(e, sp.Function) and not isinstance(e, sp.core.function.AppliedUndef):
+        if len(e.args) == 1:
+            c, m = e.args[0].as_coeff_Mul()
+            if m in coords and c.is_Rational:
+                return False
+        return True
+    return False
+
+
+def _heavy_atoms(e, coords) -> set:
+    out = set()
+    stack = [e]
+    while stack:
+        x = stack.pop()
+        if not (x.free_symbols & coords):
+            continue
+        if _is_heavy_atom(x, coords):
+            out.add(x)
+            continue
+        stack.extend(x.args)
+    return out
+
+
+def find_aliases(exprs, coords) -> list:
+    """Sub-expressions worth treating as opaque functions of the coordinates.
+
+    A sum reached from the top of an expression through sums, products and integer powers, with at
+    least two terms that carry at least two different heavy atoms (see :func:`_is_heavy_atom`), for
+    example ``1 + m1/sqrt(R1) + m2/sqrt(R2)`` or ``tanh(s (r + R)) - tanh(s (r - R))``. As an
+    element of the field such a sum is costly (rationalising it multiplies its conjugates), while
+    the curvature of a metric built from it is compact in terms of the sum and its derivatives."""
+    cs = set(coords)
+    found: list = []
+
+    def visit(e):
+        if e.is_Add:
+            heavy = [_heavy_atoms(t, cs) for t in e.args]
+            atoms = set().union(*heavy)
+            if sum(1 for h in heavy if h) >= 2 and len(atoms) >= 2:
+                if not e.has(sp.core.function.AppliedUndef, sp.Derivative) and e not in found:
+                    found.append(e)
+                return
+            for t in e.args:
+                visit(t)
+        elif e.is_Mul:
+            for t in e.args:
+                visit(t)
+        elif e.is_Pow and e.exp.is_Integer:
+            visit(e.base)
+
+    for e in exprs:
+        visit(sp.sympify(e))
+    return found
 
 
 def _trig_via_sin_cos(e):
@@ -424,7 +617,7 @@ class Field:
     provide for arbitrary functions.
     """
 
-    def __init__(self, coords, params, exprs, functions=(), extra_order=3):
+    def __init__(self, coords, params, exprs, functions=(), extra_order=3, alias_from=(), relations=None):
         self.coords = tuple(coords)
         self.params = tuple(params)
         self.coord_index = {c: i for i, c in enumerate(self.coords)}
@@ -434,10 +627,32 @@ class Field:
         self._funcs: dict = {}  # function class -> (args, max order)
         self._sqrt_keys: list = []  # sympy radicands met while scanning
         self._trig: dict = {}  # angle atom -> lcm of denominators
+        self._expq: dict = {}  # exponent atom -> lcm of denominators
         self._pending_trig = []
-        prepared = [prepare(e) for e in exprs]
+        # opaque sub-expressions (see find_aliases): sympy expression -> placeholder function application
+        self.alias_sub: dict = {}
+        self.alias_expr: dict = {}  # placeholder function class -> the expression it stands for
+        taken = {str(x) for x in self.coords + self.params} | {str(f.func) for f in functions}
+        for X in find_aliases(alias_from, self.coords):
+            deps = tuple(c for c in self.coords if c in X.free_symbols)
+            k = len(self.alias_sub) + 1
+            name = f"X{k}"
+            while name in taken:
+                name = "_" + name
+            taken.add(name)
+            ph = sp.Function(name, real=True)(*deps)
+            self.alias_sub[X] = ph
+            self.alias_expr[ph.func] = X
+        self.relations = relations
+        if relations is not None:
+            exprs = [simplify_lambertw(sp.sympify(e), self.coords, self.params, relations) for e in exprs]
+        sub = self.alias_sub
+        prepared = [prepare(e.xreplace(sub) if sub else e) for e in exprs]
+        prepared += [prepare(X) for X in self.alias_sub]  # their own generators, for the explicit values
         for f in functions:
             self._scan_func(f, 0)
+        for ph in self.alias_sub.values():
+            self._scan_func(ph, 0)
         for e in prepared:
             self._scan(e)
         self._finish_scan(extra_order)
@@ -452,6 +667,8 @@ class Field:
         self.zero = Elem(self, {}, self.pone)
         self.one = Elem(self, {0: self.pone}, self.pone)
         self.sqrts: list[SqrtGen] = []
+        self.tower_mask = 0  # bits of nested square roots
+        self._mono: dict = {}
         self._sqrt_by_key: dict = {}
         self._memo: dict = {}
         self._dgen: dict = {}
@@ -466,9 +683,13 @@ class Field:
         for e in self._sqrt_keys:
             self._sqrt_of(self.element(e))
         # pi and e are transcendental, so treating them as free generators loses nothing
-        self.complete = all(g.kind in ("coord", "param", "func", "cos", "const") for g in self.base) and all(
+        self.complete = all(g.kind in ("coord", "param", "func", "cos", "const", "alias") for g in self.base) and all(
             s.trig is not None for s in self.sqrts
         )
+        self.alias_index = [g.index for g in self.base if g.kind == "alias"]
+        self._alias_set = set(self.alias_index)
+        self._alias_vals: dict = {}
+        self._alias_pows: dict = {}
 
     # -- scanning (phase 1: which generators exist) ------------------------
     def _gen(self, key, kind, sym, data=None, label=""):
@@ -559,12 +780,20 @@ class Field:
                 self._gen(("const", sp.E), "const", sp.E)
             for c, m in terms:
                 self._scan(m)
-                self._gen(("exp", m / c.q), "exp", sp.exp(m / c.q), {"arg": m / c.q})
+                # one generator exp(m/q) per atom m, q the lcm of the denominators met (exp(m/2) = exp(m/4)**2)
+                self._expq[m] = math.lcm(self._expq.get(m, 1), c.q)
             return
         if isinstance(e, sp.log):
             w = e.args[0]
             self._scan(w)
             self._gen(("log", w), "log", e, {"arg": w})
+            return
+        if isinstance(e, sp.LambertW):
+            if not _principal(e):
+                raise Unsupported(f"a non-principal branch of LambertW: {e}")
+            z = e.args[0]
+            self._scan(z)
+            self._gen(("lambertw", z), "lambertw", e, {"arg": z})
             return
         if isinstance(e, (sp.sin, sp.cos)):
             w = e.args[0]
@@ -582,6 +811,8 @@ class Field:
         raise Unsupported(f"{type(e).__name__} is not on the fast path: {e}")
 
     def _finish_scan(self, extra_order):
+        for m, q in self._expq.items():
+            self._gen(("exp", m), "exp", sp.exp(m / q), {"arg": m / q, "q": q})
         for m, q in self._trig.items():
             angle = m / q
             self._gen(("cos", m), "cos", sp.cos(angle), {"atom": m, "q": q, "angle": angle})
@@ -596,13 +827,40 @@ class Field:
                         sym = sp.Derivative(f, *[(args[j], n) for j, n in enumerate(alpha) if n])
                     label = func.__name__ + ("_" + "".join(str(args[j]) * n for j, n in enumerate(alpha)) if k else "")
                     data = {"func": func, "args": args, "alpha": alpha, "top": top}
-                    self._gen(("func", func, alpha), "func", sym, data, label)
+                    kind = "func"
+                    if func in self.alias_expr:
+                        kind = "alias"
+                        data["expr"] = self.alias_expr[func]
+                        label = "[" + label + "]"
+                    self._gen(("func", func, alpha), kind, sym, data, label)
 
     # -- elements ------------------------------------------------------------
     def tick(self):
         self.ops += 1
-        if self.deadline is not None and not self.ops & 63 and time.monotonic() > self.deadline:
+        if self.deadline is not None and not self.ops & 63 and time.process_time() > self.deadline:
             raise BudgetExceeded()
+
+    def sum(self, elems) -> Elem:
+        """Sum of elements: terms with equal denominators are added before any gcd is taken."""
+        groups: list = []  # [denominator, {mask: numerator}, the element when it is alone]
+        for e in elems:
+            if not e.c:
+                continue
+            for grp in groups:
+                if grp[0] == e.d:
+                    acc = grp[1]
+                    for m, p in e.c.items():
+                        q = acc.get(m)
+                        acc[m] = p if q is None else q + p
+                    grp[2] = None
+                    break
+            else:
+                groups.append([e.d, dict(e.c), e])
+        self.tick()
+        out = self.zero
+        for d, acc, alone in groups:
+            out = out + (alone if alone is not None else self.make(acc, d))
+        return out
 
     def const(self, v) -> Elem:
         if isinstance(v, Elem):
@@ -681,20 +939,61 @@ class Field:
             i += 1
         return out, den * extra
 
-    def _new_sqrt(self, num, den, sym, trig=None) -> SqrtGen:
+    def _new_sqrt(self, num, den, sym, trig=None, radicand=None) -> SqrtGen:
         if len(self.sqrts) >= 24:
             raise Unsupported("too many square roots")
-        s = SqrtGen(len(self.sqrts), num, den, sym, trig)
+        s = SqrtGen(len(self.sqrts), num, den, sym, trig, tower=radicand is not None)
         self.sqrts.append(s)
-        s.radicand = self.make({0: num}, den)
+        if radicand is not None:
+            s.radicand = radicand
+            self.tower_mask |= 1 << s.bit
+        else:
+            s.radicand = self.make({0: num}, den)
         return s
+
+    def _mono_elem(self, m1: int, m2: int) -> Elem:
+        """``s^m1 * s^m2`` as an element (nested roots replaced by their radicands)."""
+        key = (m1, m2) if m1 <= m2 else (m2, m1)
+        r = self._mono.get(key)
+        if r is None:
+            o = m1 & m2
+            if not o:
+                r = Elem(self, {m1 ^ m2: self.pone}, self.pone)
+            else:
+                i = o.bit_length() - 1  # the highest common root
+                bit = 1 << i
+                r = self.sqrts[i].radicand * self._mono_elem(m1 ^ bit, m2 ^ bit)
+            self._mono[key] = r
+        return r
+
+    def mul_tower(self, a: Elem, b: Elem) -> Elem:
+        """Product when nested roots occur in both factors (each square reduced to its radicand)."""
+        groups: dict = {}  # denominator (as text) -> (denominator, {mask: polynomial})
+        for m1, p1 in a.c.items():
+            for m2, p2 in b.c.items():
+                f = p1 * p2
+                mono = self._mono_elem(m1, m2)
+                key = str(mono.d)
+                grp = groups.get(key)
+                if grp is None:
+                    grp = groups[key] = (mono.d, {})
+                acc = grp[1]
+                for m, q in mono.c.items():
+                    t = f * q if not q.is_one() else f
+                    old = acc.get(m)
+                    acc[m] = t if old is None else old + t
+        den = a.d * b.d
+        out = self.zero
+        for d, acc in groups.values():
+            out = out + self.make(acc, d * den)
+        return out
 
     def _sqrt_of(self, R: Elem) -> Elem:
         """``sqrt(R)`` as an element (principal root), creating the generator if new."""
         if not R.c:
             return self.zero
         if not R.is_plain():
-            raise Unsupported("square root of an expression with square roots")
+            return self._nested_sqrt(R)
         num, den = R.c[0], R.d
         # canonical radicand: sqrt((cn pn)/(cd pd)) = (s/cd) sqrt(k pn / pd) with cn cd = s^2 k, so that
         # sqrt(Lambda/3) and sqrt(3 Lambda) share one generator
@@ -716,10 +1015,99 @@ class Field:
             self._sqrt_by_key[key] = s
         return self.const(factor) * Elem(self, {1 << s.bit: self.pone}, self.pone)
 
+    def _nested_sqrt(self, R: Elem) -> Elem:
+        """``sqrt(R)`` for a radicand that uses square roots: a new root on top of them (a tower).
+
+        The relation ``s**2 = R`` is applied; ``R`` being a square in the lower field would be a
+        hidden relation, so such a field is never :attr:`complete`."""
+        key = ("nested", tuple(sorted((m, str(p)) for m, p in R.c.items())), str(R.d))
+        s = self._sqrt_by_key.get(key)
+        if s is None:
+            s = self._new_sqrt(None, R.d, sp.sqrt(self.to_sympy(R, factor=False)), radicand=R)
+            self._sqrt_by_key[key] = s
+        return Elem(self, {1 << s.bit: self.pone}, self.pone)
+
     def element(self, expr) -> Elem:
         """Convert a sympy expression (whose atoms were scanned) to an element."""
+        expr = sp.sympify(expr)
+        if self.relations is not None and expr.has(sp.LambertW):
+            expr = simplify_lambertw(expr, self.coords, self.params, self.relations)
+        if self.alias_sub:
+            expr = expr.xreplace(self.alias_sub)
         expr = prepare(expr)
         return self._el(expr)
+
+    # -- opaque sub-expressions ----------------------------------------------
+    def alias_value(self, j: int) -> Elem:
+        """The explicit value of alias generator number ``j`` (the derivative its index says)."""
+        v = self._alias_vals.get(j)
+        if v is None:
+            g = self.base[j]
+            alpha = g.data["alpha"]
+            if not any(alpha):
+                v = self._el(prepare(g.data["expr"]))
+            else:
+                k = next(i for i, e in enumerate(alpha) if e)
+                lower = list(alpha)
+                lower[k] -= 1
+                h = self._gens[("func", g.data["func"], tuple(lower))]
+                v = self.alias_value(h.index).diff(self.coord_index[g.data["args"][k]])
+            self._alias_vals[j] = v
+        return v
+
+    def _alias_power(self, j: int, e: int) -> Elem:
+        key = (j, e)
+        v = self._alias_pows.get(key)
+        if v is None:
+            v = self.alias_value(j) if e == 1 else self._alias_power(j, e - 1) * self.alias_value(j)
+            self._alias_pows[key] = v
+        return v
+
+    def uses_alias(self, a: Elem) -> bool:
+        if not self.alias_index or not a.c:
+            return False
+        used, _bits = a._needs()
+        return bool(used & self._alias_set)
+
+    def _expand_poly(self, p) -> Elem:
+        idx = self.alias_index
+        groups: dict = {}
+        for exps, c in p.terms():
+            key = tuple(exps[j] for j in idx)
+            rest = list(exps)
+            for j in idx:
+                rest[j] = 0
+            groups.setdefault(key, {})[tuple(rest)] = c
+        out = self.zero
+        for key, terms in groups.items():
+            t = Elem(self, {0: self.ctx.from_dict(terms)}, self.pone)
+            for j, e in zip(idx, key, strict=True):
+                if e:
+                    t = t * self._alias_power(j, e)
+            out = out + t
+        return out
+
+    def expand(self, a: Elem) -> Elem:
+        """``a`` with every opaque generator replaced by its explicit value."""
+        if not self.uses_alias(a):
+            return a
+        num = self.zero
+        for m, p in a.c.items():
+            t = self._expand_poly(p)
+            if m:
+                t = t * Elem(self, {m: self.pone}, self.pone)
+            num = num + t
+        if not num.c:
+            return self.zero
+        return num / self._expand_poly(a.d)
+
+    def is_zero(self, a: Elem) -> bool:
+        """Exact zero test (opaque generators are expanded first)."""
+        if not a.c:
+            return True
+        if not self.uses_alias(a):
+            return False
+        return not self.expand(a).c
 
     def _el(self, e) -> Elem:
         r = self._memo.get(e)
@@ -788,10 +1176,15 @@ class Field:
                     raise Unsupported(f"exp of a non-integer constant: {e}")
                 out = self._g(("const", sp.E)) ** int(c0)
             for c, m in terms:
-                out = out * self._g(("exp", m / c.q)) ** int(c * c.q)
+                g = self._gens.get(("exp", m))
+                if g is None:
+                    raise Unsupported(f"expression outside this field: {e}")
+                out = out * self.gen_elem(g) ** int(c * g.data["q"])
             return out
         if isinstance(e, sp.log):
             return self._g(("log", e.args[0]))
+        if isinstance(e, sp.LambertW) and _principal(e):
+            return self._g(("lambertw", e.args[0]))
         if isinstance(e, (sp.sin, sp.cos)):
             w = e.args[0]
             c, m = sp.expand(w).as_coeff_Mul()
@@ -823,7 +1216,7 @@ class Field:
             r = self.one if g.sym == x else None
         elif g.kind in ("param", "const"):
             r = None
-        elif g.kind == "func":
+        elif g.kind in ("func", "alias"):
             args, alpha = g.data["args"], g.data["alpha"]
             if x in args:
                 a = list(alpha)
@@ -843,6 +1236,13 @@ class Field:
             w = self._el(g.data["arg"])
             dw = w.diff(i)
             r = None if dw.is_zero() else dw / w
+        elif g.kind == "lambertw":
+            # W exp(W) = z: dW = W dz / (z (1 + W))
+            z = self._el(g.data["arg"])
+            dz = z.diff(i)
+            if not dz.is_zero():
+                W = self.gen_elem(g)
+                r = W * dz / (z * (W + 1))
         elif g.kind == "cos":
             atom = g.data["atom"]
             if atom in self.coord_index:
@@ -940,30 +1340,59 @@ class Field:
         return self.qctx.from_dict(p.to_dict())
 
     def eval_arb(self, p, base):
+        if p.is_constant():
+            return flint.arb(p.leading_coefficient()) if not p.is_zero() else flint.arb(0)
         total = flint.arb(0)
+        pows: dict = {}
         for exps, coeff in p.terms():
             t = flint.arb(coeff)
             for j, e in enumerate(exps):
                 if e:
-                    t = t * base[j] ** e
+                    key = (j, e)
+                    v = pows.get(key)
+                    if v is None:
+                        v = pows[key] = base[j] ** e
+                    t = t * v
             total += t
         return total
 
-    def gen_syms(self):
-        return [g.sym for g in self.base]
+    def gen_sym(self, j: int, opaque: bool = False):
+        """sympy form of base generator ``j``: an opaque one as its explicit expression (its
+        derivatives evaluated), or with ``opaque`` as its placeholder function (``X1(t, x)``,
+        ``Derivative(X1(t, x), x)``; :attr:`alias_sub` maps each expression to its placeholder)."""
+        g = self.base[j]
+        if g.kind != "alias" or opaque:
+            return g.sym
+        cache = self.__dict__.setdefault("_gen_sym_cache", {})
+        key = (j, opaque)
+        v = cache.get(key)
+        if v is None:
+            alpha, args = g.data["alpha"], g.data["args"]
+            spec = [(args[k], e) for k, e in enumerate(alpha) if e]
+            X = g.data["expr"]
+            if not spec:
+                v = X
+            elif opaque:
+                v = sp.Derivative(X, *spec, evaluate=False)
+            else:
+                v = sp.diff(X, *spec)
+            cache[key] = v
+        return v
 
-    def poly_to_sympy(self, p):
-        syms = self.gen_syms()
+    def gen_syms(self, opaque: bool = False):
+        return [self.gen_sym(j, opaque) for j in range(len(self.base))]
+
+    def poly_to_sympy(self, p, opaque: bool = False):
         terms = []
         for exps, coeff in p.terms():
             t = sp.Integer(int(coeff))
             for j, e in enumerate(exps):
                 if e:
-                    t = t * syms[j] ** e
+                    t = t * self.gen_sym(j, opaque) ** e
             terms.append(t)
         return sp.Add(*terms)
 
-    def _factored(self, p):
+    def _factored(self, p, opaque: bool = False):
         if p.is_constant():
             return sp.Integer(int(p.leading_coefficient()))
         c, facs = p.factor()
@@ -983,17 +1412,17 @@ class Field:
                 hi[1] -= m
         facs = [(f, e) for f, e in facs if e]
         for f, e in facs:
-            out = out * self.poly_to_sympy(f) ** e
+            out = out * self.poly_to_sympy(f, opaque) ** e
         return out
 
-    def to_sympy(self, a: Elem, factor: bool = True):
-        """The element as a sympy expression in the chart's own symbols."""
+    def to_sympy(self, a: Elem, factor: bool = True, opaque: bool = False):
+        """The element as a sympy expression in the chart's own symbols (see :meth:`gen_sym`)."""
         if not a.c:
             return sp.Integer(0)
         conv = self._factored if factor else self.poly_to_sympy
         num = sp.Integer(0)
         for m, p in a.c.items():
-            t = conv(p)
+            t = conv(p, opaque)
             k = 0
             mm = m
             while mm:
@@ -1002,7 +1431,7 @@ class Field:
                 mm >>= 1
                 k += 1
             num = num + t
-        return num / conv(a.d)
+        return num / conv(a.d, opaque)
 
     # -- points --------------------------------------------------------------
     def point(self, values: dict, angles: dict | None = None) -> Point:
@@ -1075,6 +1504,20 @@ class Field:
                 g = pend[j]
                 if g.kind == "const":
                     val = flint.arb.pi() if g.sym is sp.pi else flint.arb(1).exp()
+                elif g.kind == "alias":
+                    w = self.alias_value(j)
+                    ensure(w)
+                    val = w.evaluate(pt)
+                    if isinstance(val, flint.fmpq):
+                        ex[j] = val
+                        pt._vals = None
+                    val = flint.arb(val)
+                elif g.kind == "lambertw":
+                    w = self._el(g.data["arg"])
+                    ensure(w)
+                    val = flint.arb(w.evaluate(pt)).lambertw()
+                    if not val.is_finite():
+                        raise ValueError("LambertW of an argument below -1/e")
                 elif g.kind in ("exp", "log"):
                     w = self._el(g.data["arg"])
                     ensure(w)
@@ -1117,9 +1560,11 @@ class Field:
                 asq[i] = rv.sqrt()
 
             for g in pending:
-                ensure_base(g.index)
+                if g.kind != "alias":  # opaque generators (and their derivatives) on first use only
+                    ensure_base(g.index)
             for i in range(len(self.sqrts)):
                 ensure_sqrt(i)
+        pt.fill = ensure_base
         return pt
 
 

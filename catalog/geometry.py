@@ -34,7 +34,9 @@ else the result is ``inconclusive`` (method ``sampled``), never ``pass``.
 
 from __future__ import annotations
 
+import math
 import multiprocessing
+import signal
 import time
 from collections.abc import Callable
 from contextlib import contextmanager
@@ -72,8 +74,10 @@ class _Curvature:
 
     Subclasses provide ``n``, ``g``, ``dg`` (``dg[c][a][b] = d_c g_ab``),
     ``ddg`` (``ddg[c][d][a][b]``), ``zero``, ``_iz(v)`` (is v certainly 0;
-    only used to skip work), ``_nf(v)`` (normal form), ``_inverse()`` and
-    ``dgamma(d, a, b, c)`` (``d_d Gamma^a_bc``).
+    only used to skip work), ``_nf(v)`` (normal form) and ``_inverse()``.
+    Curvature needs no derivative of a Christoffel symbol: the lowered
+    Riemann tensor comes from the second derivatives of g (see
+    :attr:`riemann_lower`), and everything else from it by contraction.
     """
 
     n: int
@@ -83,6 +87,9 @@ class _Curvature:
         return self._iz(v)
 
     def _sum(self, terms):
+        field = getattr(self, "field", None)
+        if field is not None:
+            return field.sum(terms)
         out = self.zero
         for t in terms:
             out = out + t
@@ -130,67 +137,92 @@ class _Curvature:
         return out
 
     @cached_property
-    def _trace(self):
-        """Gamma^a_ab."""
-        n, G = self.n, self.christoffel
-        return [self._nf(self._sum(G[a][a][b] for a in range(n))) for b in range(n)]
-
-    @cached_property
     def ricci(self):
-        """R_bd = d_a Gamma^a_bd - d_d Gamma^a_ab + Gamma^a_ae Gamma^e_bd - Gamma^a_de Gamma^e_ab."""
-        n, G, iz, tr = self.n, self.christoffel, self._iz, self._trace
+        """R_bd = g^ac R_abcd (= d_a Gamma^a_bd - d_d Gamma^a_ab + Gamma^a_ae Gamma^e_bd - Gamma^a_de Gamma^e_ab)."""
+        n, gi, L, iz = self.n, self.ginv, self.riemann_lower, self._iz
         out = [[self.zero] * n for _ in range(n)]
         for b in range(n):
             for d in range(b, n):
-                terms = [self.dgamma(a, a, b, d) for a in range(n)]
-                terms.append(-self.dtrace(d, b))
-                for e in range(n):
-                    if not iz(G[e][b][d]) and not iz(tr[e]):
-                        terms.append(tr[e] * G[e][b][d])
-                    for a in range(n):
-                        if not iz(G[a][d][e]) and not iz(G[e][a][b]):
-                            terms.append(-(G[a][d][e] * G[e][a][b]))
-                v = self._nf(self._sum(t for t in terms if not iz(t)))
-                out[b][d] = out[d][b] = v
-        return out
-
-    @cached_property
-    def riemann(self):
-        """R^a_bcd = d_c Gamma^a_db - d_d Gamma^a_cb + Gamma^a_ce Gamma^e_db - Gamma^a_de Gamma^e_cb."""
-        n, G, iz = self.n, self.christoffel, self._iz
-        out = [[[[self.zero] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
-        for a in range(n):
-            for b in range(n):
-                for c in range(n):
-                    for d in range(c + 1, n):
-                        terms = [self.dgamma(c, a, d, b), -self.dgamma(d, a, c, b)]
-                        for e in range(n):
-                            if not iz(G[a][c][e]) and not iz(G[e][d][b]):
-                                terms.append(G[a][c][e] * G[e][d][b])
-                            if not iz(G[a][d][e]) and not iz(G[e][c][b]):
-                                terms.append(-(G[a][d][e] * G[e][c][b]))
-                        v = self._nf(self._sum(t for t in terms if not iz(t)))
-                        out[a][b][c][d] = v
-                        out[a][b][d][c] = -v if not iz(v) else self.zero
+                terms = [
+                    gi[a][c] * L[a][b][c][d]
+                    for a in range(n)
+                    for c in range(n)
+                    if not iz(gi[a][c]) and not iz(L[a][b][c][d])
+                ]
+                if terms:
+                    v = self._nf(self._sum(terms))
+                    out[b][d] = out[d][b] = v
         return out
 
     @cached_property
     def riemann_lower(self):
-        """R_abcd = g_ae R^e_bcd."""
-        n, g, R, iz = self.n, self.g, self.riemann, self._iz
+        """R_abcd = (g_ad,bc + g_bc,ad - g_ac,bd - g_bd,ac)/2 + Gamma^e_bc Gamma_ead - Gamma^e_bd Gamma_eac.
+
+        Only the 21 components with a < b, c < d, (a, b) <= (c, d) are computed; the others follow
+        from the antisymmetry in each pair and the pair exchange symmetry. No derivative of a
+        Christoffel symbol is needed (second derivatives of g only)."""
+        n, ddg, G1, G, iz = self.n, self.ddg, self.christoffel_first, self.christoffel, self._iz
+        out = [[[[self.zero] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
+        pairs = [(a, b) for a in range(n) for b in range(a + 1, n)]
+        for i, (a, b) in enumerate(pairs):
+            for c, d in pairs[i:]:
+                terms = [t for t in (ddg[b][c][a][d], ddg[a][d][b][c]) if not iz(t)]
+                terms += [-t for t in (ddg[b][d][a][c], ddg[a][c][b][d]) if not iz(t)]
+                v = self._sum(terms) / 2 if terms else self.zero
+                quad = []
+                for e in range(n):
+                    if not iz(G[e][b][c]) and not iz(G1[e][a][d]):
+                        quad.append(G[e][b][c] * G1[e][a][d])
+                    if not iz(G[e][b][d]) and not iz(G1[e][a][c]):
+                        quad.append(-(G[e][b][d] * G1[e][a][c]))
+                if quad:
+                    v = v + self._sum(quad)
+                if iz(v):
+                    continue
+                v = self._nf(v)
+                if iz(v):
+                    continue
+                w = -v
+                out[a][b][c][d] = out[b][a][d][c] = out[c][d][a][b] = out[d][c][b][a] = v
+                out[b][a][c][d] = out[a][b][d][c] = out[d][c][a][b] = out[c][d][b][a] = w
+        return out
+
+    @cached_property
+    def riemann(self):
+        """R^a_bcd = g^ae R_ebcd (convention R^a_bcd = d_c Gamma^a_db - d_d Gamma^a_cb + ...)."""
+        n, gi, L, iz = self.n, self.ginv, self.riemann_lower, self._iz
         out = [[[[self.zero] * n for _ in range(n)] for _ in range(n)] for _ in range(n)]
         for a in range(n):
             for b in range(n):
                 for c in range(n):
                     for d in range(c + 1, n):
-                        v = self._nf(
-                            self._sum(
-                                g[a][e] * R[e][b][c][d] for e in range(n) if not iz(g[a][e]) and not iz(R[e][b][c][d])
-                            )
-                        )
-                        out[a][b][c][d] = v
-                        out[a][b][d][c] = -v if not iz(v) else self.zero
+                        terms = [
+                            gi[a][e] * L[e][b][c][d] for e in range(n) if not iz(gi[a][e]) and not iz(L[e][b][c][d])
+                        ]
+                        if terms:
+                            v = self._nf(self._sum(terms))
+                            out[a][b][c][d] = v
+                            out[a][b][d][c] = -v if not iz(v) else self.zero
         return out
+
+    @cached_property
+    def _bivector_inverse(self):
+        """Index pairs a < b and G2[(a, b), (e, f)] = g^ae g^bf - g^af g^be (non-zero entries)."""
+        n, gi, iz = self.n, self.ginv, self._iz
+        pairs = [(a, b) for a in range(n) for b in range(a + 1, n)]
+        G2 = {}
+        for i, (a, b) in enumerate(pairs):
+            for e, f in pairs[i:]:
+                terms = []
+                if not iz(gi[a][e]) and not iz(gi[b][f]):
+                    terms.append(gi[a][e] * gi[b][f])
+                if not iz(gi[a][f]) and not iz(gi[b][e]):
+                    terms.append(-(gi[a][f] * gi[b][e]))
+                if terms:
+                    v = self._nf(self._sum(terms))
+                    if not iz(v):
+                        G2[(a, b), (e, f)] = G2[(e, f), (a, b)] = v
+        return pairs, G2
 
     @cached_property
     def ricci_scalar(self):
@@ -237,18 +269,19 @@ class _Curvature:
 
     @cached_property
     def riemann_mixed(self):
-        """R^ab_cd = g^bf R^a_fcd (only c < d filled; antisymmetric in both pairs)."""
-        n, gi, R, iz = self.n, self.ginv, self.riemann, self._iz
+        """R^ab_cd = g^ae g^bf R_efcd: dict {(a, b, c, d): value} of the non-zero components with
+        a < b and c < d (antisymmetric in both pairs)."""
+        pairs, G2 = self._bivector_inverse
+        L, iz = self.riemann_lower, self._iz
         out = {}
-        for a in range(n):
-            for b in range(n):
-                for c in range(n):
-                    for d in range(c + 1, n):
-                        v = self._sum(
-                            gi[b][f] * R[a][f][c][d] for f in range(n) if not iz(gi[b][f]) and not iz(R[a][f][c][d])
-                        )
-                        if not iz(v):
-                            out[a, b, c, d] = self._nf(v)
+        for a, b in pairs:
+            row = [(ef, G2[(a, b), ef]) for ef in pairs if ((a, b), ef) in G2]
+            for c, d in pairs:
+                terms = [v * L[e][f][c][d] for (e, f), v in row if not iz(L[e][f][c][d])]
+                if terms:
+                    v = self._nf(self._sum(terms))
+                    if not iz(v):
+                        out[a, b, c, d] = v
         return out
 
     @cached_property
@@ -391,11 +424,19 @@ class Geometry(_Curvature):
     * ``val(expr)``, ``dval(expr, i)``, ``ddval(expr, i, j)``: an expression of
       the chart and its derivatives in the same representation;
     * ``to_sympy(v)``: any such value as a sympy expression in the chart's own
-      symbols (``cos(theta)`` etc.), factored;
+      symbols (``cos(theta)`` etc.), factored; ``to_sympy(v, opaque=True)``
+      keeps opaque sub-expressions as placeholder functions, explained by
+      ``legend()``; ``opaque`` maps each placeholder to its expression;
     * ``is_zero(v)``: exact zero test of the path;
-    * ``sample_points()``: list of :class:`PointData` (seeded, cached);
+    * ``sample_points()``, ``draw_point()``: :class:`PointData` (seeded, cached);
     * ``verify(fn, ...)``: sampled stage then proof, an :class:`Outcome`;
-    * ``component(name_indices)``: "R[t,r]"-style label helper.
+      ``prove_values(fn)``: symbolic values within the budget;
+    * ``label(name, *indices)``: "R[t,r]"-style component label;
+    * ``vanishes(v)``: cheap structural zero test (skipping work only).
+
+    The budget is CPU time of this process (``time.process_time``) on the
+    flint path, so a loaded machine does not turn proofs into timeouts; the
+    sympy path runs in a child process under a wall-clock limit.
     """
 
     def __init__(
@@ -417,12 +458,17 @@ class Geometry(_Curvature):
         self.field: Field | None = None
         self.fallback_reason = ""
         self._dcache: dict = {}
-        self._dgam: dict = {}
-        self._dtr: dict = {}
         exprs = _spec_exprs(spec)
         if path != "sympy":
             try:
-                self.field = Field(self.coords, self.params, exprs, functions=spec.functions)
+                self.field = Field(
+                    self.coords,
+                    self.params,
+                    exprs,
+                    functions=spec.functions,
+                    alias_from=list(spec.metric),
+                    relations=tuple(spec.param_ranges) + tuple(spec.domain),
+                )
                 self.g = [[self.field.element(spec.metric[i, j]) for j in range(self.n)] for i in range(self.n)]
                 self.path = "flint"
             except Unsupported as e:
@@ -450,9 +496,10 @@ class Geometry(_Curvature):
         return sp.cancel(v) if v != 0 else v
 
     def is_zero(self, v) -> bool:
-        """Exact zero test (flint: the reduced fraction is 0; sympy: cancel, then simplify)."""
+        """Exact zero test (flint: the reduced fraction is 0, opaque sub-expressions expanded; sympy:
+        cancel, then simplify)."""
         if isinstance(v, Elem):
-            return not v.c
+            return v.F.is_zero(v)
         v = sp.sympify(v)
         if v == 0 or sp.cancel(v) == 0:
             return True
@@ -495,14 +542,36 @@ class Geometry(_Curvature):
             return v.diff(i)
         return sp.cancel(sp.diff(v, self.coords[i]))
 
-    def to_sympy(self, v):
-        """A value of this path as a sympy expression in the chart's symbols."""
+    def to_sympy(self, v, opaque: bool = False):
+        """A value of this path as a sympy expression in the chart's symbols.
+
+        An opaque sub-expression (see :attr:`opaque`) appears as itself, its derivatives evaluated;
+        with ``opaque=True`` as its placeholder function instead (compact; see :meth:`legend`)."""
         if isinstance(v, Elem):
-            return v.F.to_sympy(v)
+            return v.F.to_sympy(v, opaque=opaque)
         return sp.factor(v) if v != 0 else sp.Integer(0)
 
     def label(self, name, *idx):
         return f"{name}[{','.join(str(self.coords[i]) for i in idx)}]"
+
+    @property
+    def opaque(self) -> dict:
+        """Placeholder function application -> the sub-expression of the metric it stands for.
+
+        On the flint path a sum of several coordinate-dependent roots or transcendental functions
+        (``1 + m1/sqrt(R1) + m2/sqrt(R2)``, ``tanh(s (r + R)) - tanh(s (r - R))``) is carried as an
+        opaque function of the coordinates with generic derivatives; zero tests substitute the
+        explicit derivatives (see :meth:`is_zero`), so proofs stay exact."""
+        if self.field is None:
+            return {}
+        return {ph: X for X, ph in self.field.alias_sub.items()}
+
+    def legend(self) -> str:
+        """The text "where X1(t, x) = ..." explaining the placeholders of ``to_sympy(v, opaque=True)``."""
+        items = self.opaque
+        if not items:
+            return ""
+        return "where " + "; ".join(f"{sp.sstr(ph)} = {sp.sstr(X)}" for ph, X in items.items())
 
     # -- derivatives of the metric (computed once) ---------------------------
     @cached_property
@@ -538,24 +607,6 @@ class Geometry(_Curvature):
 
         return _invert(self.g, self.n, self._iz, self._nf, self.one, self.zero, pick)
 
-    def dgamma(self, d, a, b, c):
-        key = (d, a, min(b, c), max(b, c))
-        v = self._dgam.get(key)
-        if v is None:
-            G = self.christoffel[a][b][c]
-            v = self._diff(G, d) if not self._iz(G) else self.zero
-            self._dgam[key] = v
-        return v
-
-    def dtrace(self, d, b):
-        key = (min(b, d), max(b, d))  # d_d Gamma^a_ab = d_d d_b log sqrt|g| is symmetric
-        v = self._dtr.get(key)
-        if v is None:
-            t = self._trace[key[1]]
-            v = self._diff(t, key[0]) if not self._iz(t) else self.zero
-            self._dtr[key] = v
-        return v
-
     # -- budget --------------------------------------------------------------
     @contextmanager
     def deadline(self, seconds: float | None):
@@ -564,7 +615,7 @@ class Geometry(_Curvature):
             yield
             return
         old = self.field.deadline
-        self.field.deadline = time.monotonic() + seconds
+        self.field.deadline = time.process_time() + seconds
         try:
             yield
         finally:
@@ -675,7 +726,7 @@ class Geometry(_Curvature):
 
         for pd in self.sample_points():
             try:
-                with mpmath.workdps(DIGITS + 10):
+                with mpmath.workdps(DIGITS + 10), arb_precision():
                     res = fn(pd)
             except (ZeroDivisionError, ValueError):
                 continue
@@ -811,7 +862,10 @@ def _short(s: str, limit: int = 200) -> str:
 
 
 def _run_limited(fn, seconds):
-    """Run ``fn`` in a forked child with a hard time limit: (result, error)."""
+    """Run ``fn`` in a forked child limited to ``seconds`` of CPU time: (result, error).
+
+    The child gets RLIMIT_CPU (so a loaded machine does not turn a proof into a timeout, as on the
+    flint path); the parent also gives up after a generous wall-clock limit."""
     try:
         ctx = multiprocessing.get_context("fork")
     except ValueError:  # pragma: no cover - platforms without fork
@@ -823,6 +877,15 @@ def _run_limited(fn, seconds):
 
     def child():
         try:
+            import resource
+
+            cpu = max(1, math.ceil(seconds))
+            _soft, hard = resource.getrlimit(resource.RLIMIT_CPU)
+            if hard == resource.RLIM_INFINITY or hard > cpu:
+                resource.setrlimit(resource.RLIMIT_CPU, (cpu, hard))
+        except (ImportError, ValueError, OSError):  # pragma: no cover - no resource limits here
+            pass
+        try:
             send.send((fn(), None))
         except Exception as e:  # noqa: BLE001
             send.send(({}, f"{type(e).__name__}: {e}"))
@@ -833,11 +896,12 @@ def _run_limited(fn, seconds):
     proc.start()
     send.close()
     try:
-        if recv.poll(seconds):
+        if recv.poll(max(4 * seconds, seconds + 30)):
             try:
                 out = recv.recv()
             except EOFError:
-                out = ({}, "the proof process ended without a result")
+                proc.join(1)
+                out = ({}, "budget" if proc.exitcode == -signal.SIGXCPU else "the proof process ended without a result")
         else:
             out = ({}, "budget")
     finally:
@@ -926,11 +990,13 @@ class PointData(_Curvature):
     def _iz(v) -> bool:
         return v == 0  # an arb ball equals 0 only when it is exactly 0
 
+    @contextmanager
     def precision(self):
-        """Context for arithmetic on these values (the floating sympy path needs extra digits)."""
+        """Context for arithmetic on these values (interval and floating values need extra digits)."""
         import mpmath
 
-        return mpmath.workdps(DIGITS + 10)
+        with mpmath.workdps(DIGITS + 10), arb_precision():
+            yield
 
     def _nf(self, v):
         return v
@@ -1006,42 +1072,6 @@ class PointData(_Curvature):
         if self._iz(det) or (isinstance(det, flint.arb) and det.contains(0)):
             raise ZeroDivisionError("degenerate metric at the point")
         return inv, det
-
-    def _dlow(self, d, b, c):
-        """d_d Gamma_ebc - d_d g_ef Gamma^f_bc, for every e (cached)."""
-        key = (d, b, c)
-        low = self._cache.get(key)
-        if low is None:
-            n, dg, ddg, G, iz = self.n, self.dg, self.ddg, self.christoffel, self._iz
-            low = []
-            for e in range(n):
-                v = (ddg[c][d][e][b] + ddg[b][d][e][c] - ddg[e][d][b][c]) / 2
-                for f in range(n):
-                    x, y = dg[d][e][f], G[f][b][c]
-                    if not iz(x) and not iz(y):
-                        v = v - x * y
-                low.append(v)
-            self._cache[key] = low
-        return low
-
-    def dgamma(self, d, a, b, c):
-        """d_d Gamma^a_bc = g^ae (d_d Gamma_ebc - d_d g_ef Gamma^f_bc)."""
-        if b > c:
-            b, c = c, b
-        key = (d, a, b, c)
-        v = self._cache.get(key)
-        if v is None:
-            gi, iz = self.ginv, self._iz
-            low = self._dlow(d, b, c)
-            v = self.zero
-            for e in range(self.n):
-                if not iz(gi[a][e]) and not iz(low[e]):
-                    v = v + gi[a][e] * low[e]
-            self._cache[key] = v
-        return v
-
-    def dtrace(self, d, b):
-        return self._sum(self.dgamma(d, a, a, b) for a in range(self.n))
 
 
 def prove_zero(

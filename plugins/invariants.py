@@ -3,8 +3,10 @@
 Computes the Ricci scalar, the Kretschmann scalar R_abcd R^abcd and the Weyl
 square C_abcd C^abcd (from K, R_ab R^ab and R) and reports their closed forms
 in ``data`` (keys ``ricci_scalar``, ``kretschmann``, ``weyl_square``, as sympy
-strings). Each declared invariant (``ricci-scalar``, ``kretschmann``,
-``weyl-square``) is then checked: sampled stage, then exact proof.
+strings; where the engine carries a sub-expression of the metric as an opaque
+function, the strings use its placeholder, defined under ``data["opaque"]``).
+Each declared invariant (``ricci-scalar``, ``kretschmann``, ``weyl-square``) is
+then checked: sampled stage, then exact proof.
 """
 
 from __future__ import annotations
@@ -48,8 +50,12 @@ class InvariantsCheck:
         if err:
             out.append(result(self.name, "inconclusive", "none", f"curvature scalars not computed ({err})", self))
             return out
-        data = {a: sp.sstr(geometry.to_sympy(v)) for a, v in values.items()}
+        data = {a: sp.sstr(geometry.to_sympy(v, opaque=True)) for a, v in values.items()}
         shown = "; ".join(f"{a} = {s if len(s) < 200 else s[:197] + '...'}" for a, s in data.items())
+        legend = geometry.legend()
+        if legend:
+            data["opaque"] = {sp.sstr(ph): sp.sstr(X) for ph, X in geometry.opaque.items()}
+            shown += f"; {legend}"
         out.append(
             result(self.name, "pass", "symbolic", f"computed on the {geometry.path} path: {shown}", self, data=data)
         )

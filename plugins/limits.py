@@ -30,7 +30,12 @@ def _filter_relations(rels):
 
 
 def _subs(expr, mapping):
-    return expr.subs(mapping, simultaneous=True) if mapping else expr
+    """Simultaneous substitution of symbols (structural: much cheaper than ``subs``)."""
+    if not mapping:
+        return expr
+    if all(k.is_Symbol for k in mapping):
+        return expr.xreplace(mapping)
+    return expr.subs(mapping, simultaneous=True)
 
 
 def _coeffs_in(F, p, j):
@@ -178,6 +183,22 @@ class LimitsCheck:
         )
         geo = Geometry(flat, seed=geometry.seed, budget=geometry.budget, samples=geometry.samples)
         n = geo.n
+        from gravicat.plugins._common import result
+
+        if geo.path == "flint":
+            try:
+                degenerate = geo.is_zero(geo.det)
+            except ZeroDivisionError:  # no pivot in the exact elimination: det g is identically 0
+                degenerate = True
+            if degenerate:
+                return result(
+                    check,
+                    "skipped",
+                    "none",
+                    f"this chart degenerates when {label} (det g is identically 0), so flatness is not "
+                    "defined in it; the substitution applies to the entry's other charts",
+                    self,
+                )
 
         def fn(X):
             R = X.riemann

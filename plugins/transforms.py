@@ -48,7 +48,7 @@ class TransformsCheck:
         n, m = geometry.n, len(target.coords)
         sub = dict(zip(target.coords, Y, strict=True))
         sub.update(rename)
-        Gp = [[sp.sympify(target.metric[A, B]).subs(sub, simultaneous=True) for B in range(m)] for A in range(m)]
+        Gp = [[sp.sympify(target.metric[A, B]).xreplace(sub) for B in range(m)] for A in range(m)]
         J = [[sp.diff(Y[A], spec.coords[a]) for a in range(n)] for A in range(m)]
         exprs = {}
         for a in range(n):
