@@ -1,0 +1,195 @@
+"""Repair suggestions: gravicat repair FILE (find the slip that makes a metric fail its checks)."""
+
+from __future__ import annotations
+
+from contextlib import ExitStack
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from gravicat.cli._base import app_context, reports_errors
+from gravicat.cli._output import emit_json, short
+from gravicat.errors import CheckFailed, InputError
+
+app = typer.Typer()
+
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented shape, see README).")]
+
+
+def _describe_failure(cr) -> str:
+    parts = []
+    for r in cr.baseline:
+        if r.check in cr.failing:
+            cex = r.counterexample or {}
+            extra = (f" ({cex.get('component')} = {cex.get('residual')} at a sample point)"
+                     if cex.get("component") else "")
+            parts.append(f"{r.check}{extra}")
+    return "; ".join(parts)
+
+
+def _check_list(results) -> str:
+    return ", ".join(f"{r.check} {r.status.value}" + (" (symbolic)" if r.method.value == "symbolic" else "")
+                     for r in results if r.status.value != "skipped")
+
+
+def _print_text(report, write: bool) -> None:
+    if report.status == "nothing-to-repair":
+        states = "; ".join(f"{c.chart}: " + (", ".join(f"{r.check} {r.status.value}" for r in c.baseline
+                                                        if r.status.value in ("fail", "error")) or "no failure")
+                           for c in report.charts)
+        typer.echo(f"{report.metric}: nothing to repair: no field-equations, signature or limits check fails "
+                   f"({states})")
+        return
+    rank = 0
+    for cr in report.charts:
+        if not cr.failing:
+            continue
+        typer.echo(f"{report.metric} / {cr.chart}: failing: {_describe_failure(cr)}")
+        what = f"{cr.candidates} single edits" + (f" and {cr.pairs} pairs" if cr.pairs else "")
+        typer.echo(f"  screened {cr.screened} of {what} at {cr.points} sample points in {cr.seconds:.1f} s; "
+                   f"{cr.passed_screen} passed the screen, {len(cr.suggestions)} repaired the chart")
+        if cr.exhausted:
+            typer.echo("  the budget ran out before every candidate was screened (raise --budget)")
+        if cr.note:
+            typer.echo(f"  note: {cr.note}")
+        for s in cr.suggestions:
+            rank += 1
+            head = f"  {rank}. " if s.size == 1 else f"  {rank}. ({s.size} edits) "
+            for k, e in enumerate(s.edits):
+                lead = head if k == 0 else " " * len(head)
+                typer.echo(f"{lead}{e.field}  [{e.kind}] {e.detail}")
+                typer.echo(f"{' ' * len(head)}   was:       {e.original}")
+                typer.echo(f"{' ' * len(head)}   suggested: {e.suggested}")
+            typer.echo(f"{' ' * len(head)}   repaired chart: {s.status}: {short(_check_list(s.checks), 200)}")
+            if s.still_failing:
+                typer.echo(f"{' ' * len(head)}   still failing (failed before too): {', '.join(s.still_failing)}")
+    if report.status == "repairs-found":
+        from gravicat.repair import HYPOTHESIS_NOTE
+
+        typer.echo(HYPOTHESIS_NOTE)
+        if not write:
+            typer.echo("Nothing was written (give --write to apply a suggestion).")
+
+
+def _catalogue_absent(app_ctx) -> bool:
+    """The database is a SQLite file that does not exist (opening it would create an empty one)."""
+    from sqlalchemy.engine import make_url
+    from sqlalchemy.exc import ArgumentError
+
+    try:
+        url = make_url(app_ctx.settings.database)
+    except ArgumentError:
+        return False  # a broken URL is reported when it is opened
+    database = url.database or ""
+    if url.get_backend_name() != "sqlite" or database in ("", ":memory:") or database.startswith("file:"):
+        return False
+    return not Path(database).expanduser().exists()
+
+
+def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> list[str]:
+    """Apply the chosen suggestion: the file (in place or JSON beside it) and a new catalogue revision."""
+    from gravicat import __version__, store
+    from gravicat.config import load_settings
+    from gravicat.metricfile import MetricDocument
+    from gravicat.repair import write_suggestion
+
+    suggestions = report.suggestions
+    if pick is None and len(suggestions) > 1:
+        raise InputError("--write", None, f"{len(suggestions)} suggestions: choose one with --pick RANK "
+                                          "(nothing was written)")
+    if pick is not None and not 1 <= pick <= len(suggestions):
+        raise InputError("--pick", None, f"{pick} is not a suggestion rank (1 to {len(suggestions)}); "
+                                         "nothing was written")
+    chosen = suggestions[(pick or 1) - 1]
+    message = "repair: " + "; ".join(f"{e.field}: {e.detail}" for e in chosen.edits)
+    author = load_settings().author
+    lines, notes = [], []
+    with ExitStack() as stack:
+        session = None
+        if is_file and _catalogue_absent(app_ctx):
+            notes.append("not stored in the catalogue: there is no catalogue database yet")
+        else:
+            session = stack.enter_context(app_ctx.transaction())  # a broken --db stops here: nothing written
+        stored = None
+        in_catalogue = session is not None and store.head(session, report.metric) is not None
+        if is_file:
+            written = write_suggestion(Path(subject), chosen)
+            if written.mode == "toml-in-place":
+                lines.append(f"wrote {written.path} (the repaired expression replaced in place)")
+            else:
+                lines.append(f"wrote {written.path}: {written.note}")
+            doc = MetricDocument(chosen.document.data, str(written.path))
+        else:
+            doc = MetricDocument(chosen.document.data, f"repair of catalogue:{report.metric}")
+        if in_catalogue:
+            stored = store.add_document(session, doc, author=author, message=message, tool_version=__version__)
+        elif session is not None:
+            notes.append(f"not stored in the catalogue: it has no entry '{report.metric}' (use 'gravicat add')")
+    if stored is not None:
+        lines.append(f"{stored.slug}: {stored.action} (revision {stored.number}, {stored.hash[:12]}); "
+                     f"message: {message}")
+    return lines + notes
+
+
+@app.command("repair")
+@reports_errors
+def repair(
+    ctx: typer.Context,
+    file: Annotated[str, typer.Argument(help="Metric file (.toml or .json), or a catalogue entry id.",
+                                        show_default=False)],
+    chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
+    max_edits: Annotated[int, typer.Option("--max-edits", min=1, max=2, help="1: single edits; 2: also pairs "
+                                           "of edits (drawn from the single edits that reduce the residual "
+                                           "most, within the budget).")] = 1,
+    budget: Annotated[float, typer.Option("--budget", min=0.1, help="Seconds for screening candidates; each "
+                                          "symbolic proof gets at most this too (and at most 20 s).")] = 60.0,
+    jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
+    write: Annotated[bool, typer.Option("--write", help="Apply a suggestion: edit the file (or write the "
+                                        "canonical JSON beside it) and store a new revision when the entry is "
+                                        "in the catalogue.")] = False,
+    pick: Annotated[int | None, typer.Option("--pick", min=1, help="With --write: the rank of the suggestion "
+                                             "to apply (needed when there are several).", show_default=False)] = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """Suggest repairs of a metric that fails its field-equation, signature or limit check.
+
+    Edits one expression in one place (a sign, a power, a factor of 2, a symbol, sin/cos, a dropped term,
+    a parameter squared), screens every candidate by exact evaluation at sample points and proves the
+    survivors. Exit 0 when there is nothing to repair or a repair is suggested, 1 when none is found.
+    """
+    from gravicat.cli.checks import load_subject
+    from gravicat.metricfile import load_file
+    from gravicat.registry import verifiers
+    from gravicat.repair import find_repairs
+    from gravicat.verify import bundled_documents
+
+    app_ctx = app_context(ctx)
+    subject = file
+    path = Path(subject)
+    is_file = path.exists() or path.suffix.lower() in (".toml", ".json")
+    doc = load_file(path, app_ctx.plugins) if is_file else load_subject(app_ctx, subject)
+    for name in chart or ():
+        if name not in doc.chart_names:
+            raise InputError(str(subject), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
+    if pick is not None and not write:
+        raise InputError("--pick", None, "only meaningful with --write")
+    if write and is_file and not _catalogue_absent(app_ctx):
+        app_ctx.open()  # a broken --db stops here, before the search
+    report = find_repairs(doc, verifiers(app_ctx.plugins), docs=bundled_documents(), charts=chart,
+                          max_edits=max_edits, budget=budget, proof_budget=min(20.0, budget), jobs=jobs)
+    do_write = write and report.status == "repairs-found"
+    if as_json:
+        out = report.to_json()
+        out["written"] = _write(app_ctx, subject, is_file, report, pick) if do_write else []
+        emit_json(out)
+    else:
+        _print_text(report, write)  # the ranks are shown before --write may ask for --pick
+        for line in _write(app_ctx, subject, is_file, report, pick) if do_write else []:
+            typer.echo(line)
+    if report.status == "no-repair-found":
+        if as_json:
+            raise typer.Exit(1)
+        failing = sorted({c for cr in report.charts for c in cr.failing})
+        raise CheckFailed(f"{subject}: no repair found for {', '.join(failing)} "
+                          f"({sum(cr.screened for cr in report.charts)} candidates screened)")
