@@ -42,6 +42,78 @@ def _fraction(x: float, rng: random.Random, lo=None, hi=None) -> Fraction:
         den *= 10
 
 
+_MP_FUNCS = {
+    "exp": "exp",
+    "log": "log",
+    "sin": "sin",
+    "cos": "cos",
+    "tan": "tan",
+    "sinh": "sinh",
+    "cosh": "cosh",
+    "tanh": "tanh",
+    "asin": "asin",
+    "acos": "acos",
+    "atan": "atan",
+    "Abs": "fabs",
+    "LambertW": "lambertw",
+}
+
+
+def mp_function(syms, expr):
+    """``f(*values)`` evaluating ``expr`` in mpmath at the current precision.
+
+    A direct tree walk (much cheaper to build than ``sympy.lambdify``, which prints and compiles
+    source); expressions it does not know fall back to lambdify."""
+    index = {s: i for i, s in enumerate(syms)}
+
+    def build(e):
+        if e.is_Symbol:
+            i = index[e]
+            return lambda a: a[i]
+        if e.is_Integer:
+            v = int(e)
+            return lambda a: v
+        if e.is_Rational:
+            p, q = int(e.p), int(e.q)
+            return lambda a: mpmath.mpf(p) / q
+        if e is sp.pi:
+            return lambda a: +mpmath.pi
+        if e is sp.E:
+            return lambda a: +mpmath.e
+        if e.is_Add or e.is_Mul:
+            first, *rest = [build(x) for x in e.args]
+            add = e.is_Add
+
+            def combine(a):
+                v = mpmath.mpf(first(a))
+                for f in rest:
+                    v = v + f(a) if add else v * f(a)
+                return v
+
+            return combine
+        if e.is_Pow:
+            b = build(e.base)
+            if e.exp.is_Integer:
+                k = int(e.exp)
+                return lambda a: mpmath.mpf(b(a)) ** k
+            if e.exp == sp.Rational(1, 2):
+                return lambda a: mpmath.sqrt(b(a))
+            x = build(e.exp)
+            return lambda a: mpmath.power(b(a), x(a))
+        name = _MP_FUNCS.get(type(e).__name__)
+        if name is not None and len(e.args) == 1:
+            fn = getattr(mpmath, name)
+            g = build(e.args[0])
+            return lambda a: fn(g(a))
+        raise NotImplementedError(type(e).__name__)
+
+    try:
+        f = build(sp.sympify(expr))
+    except (NotImplementedError, KeyError):
+        return sp.lambdify(syms, expr, modules="mpmath", docstring_limit=0)
+    return lambda *args: f(args)
+
+
 def _rel_parts(rel):
     op = rel.rel_op
     if op in (">", ">="):
@@ -71,14 +143,14 @@ class Sampler:
                 raise ValueError("an inequality of the domain is always false")
             diff, strict = _rel_parts(rel)
             free = diff.free_symbols
-            f = sp.lambdify(syms, diff, modules="mpmath")
+            f = mp_function(syms, diff)
             bound = None
             for side, other, lower in (
                 (rel.lhs, rel.rhs, rel.rel_op in (">", ">=")),
                 (rel.rhs, rel.lhs, rel.rel_op in ("<", "<=")),
             ):
                 if side.is_Symbol and side not in other.free_symbols:
-                    bound = (side, other.free_symbols, sp.lambdify(syms, other, modules="mpmath"), lower)
+                    bound = (side, other.free_symbols, mp_function(syms, other), lower)
                     break
             self.relations.append((rel, free, f, strict, bound))
 

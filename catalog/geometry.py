@@ -552,7 +552,10 @@ class Geometry(_Curvature):
         return sp.factor(v) if v != 0 else sp.Integer(0)
 
     def label(self, name, *idx):
-        return f"{name}[{','.join(str(self.coords[i]) for i in idx)}]"
+        names = self.__dict__.get("_coord_names")
+        if names is None:
+            names = self.__dict__["_coord_names"] = [str(c) for c in self.coords]
+        return f"{name}[{','.join(names[i] for i in idx)}]"
 
     @property
     def opaque(self) -> dict:
