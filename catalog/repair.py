@@ -1,4 +1,4 @@
-"""Repair suggestions: find the transcription slip that makes a metric file fail its checks.
+"""Repair suggestions: find the copying slip that makes a metric file fail its checks.
 
 The commonest reason a newly typed metric fails is a slip in one place: a sign, a power, a
 factor of 2, a swapped symbol, ``sin`` for ``cos``. :func:`find_repairs` looks for it:
@@ -2175,7 +2175,7 @@ def _repair_chart(doc, cr: ChartRepair, verifiers, docs, max_edits, budget, proo
                   and r.method == Method.NONE]
     if structural:
         cr.note = (f"{structural[0].check} fails for a structural reason ({structural[0].detail}); "
-                   "that is not a transcription slip an edit of one expression can repair")
+                   "that is not a copying slip an edit of one expression can repair")
         return
     model = _Model(doc, cr.chart)
     claims, unscreened = _claims(model, cr.baseline, docs)

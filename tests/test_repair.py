@@ -1,4 +1,4 @@
-"""gravicat repair: suggestions for transcription slips, checked against the published metrics.
+"""gravicat repair: suggestions for copying slips, checked against the published metrics.
 
 The repaired metrics are compared with the textbook forms written out here with sympy (not
 with the bundled files the slips were made from), and the screening arithmetic is compared

@@ -31,7 +31,7 @@ def test_check_passes_a_correct_schwarzschild_exterior(cli):
 
 
 def test_flipped_sign_fails_with_a_real_counterexample(cli, tmp_path):
-    # one flipped sign in g_rr (a typical transcription slip): no longer vacuum
+    # one flipped sign in g_rr (a typical copying slip): no longer vacuum
     bad = broken_copy(tmp_path, "dr**2/f", "dr**2/(1 + 2*M/r)")
     r = cli("check", str(bad), "--json", "--only", "field-equations")
     assert r.exit_code == 1
