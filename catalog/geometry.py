@@ -12,13 +12,18 @@ Two exact representations ("paths"):
   (:mod:`gravicat._ratfun`): coordinates, parameters, values of arbitrary
   functions and their derivatives (``a``, ``a_t``, ``a_tt``...), ``cos`` of an
   angle with ``sin`` as a square-root generator (``sin**2 = 1 - cos**2``,
-  ``d/dtheta cos = -sin``), other square roots, ``exp``, ``log`` and symbolic
-  powers, each with its derivation rule. Fractions are kept reduced by gcd,
-  so an identity is proved when its residual reduces to 0.
+  ``d/dtheta cos = -sin``), other square roots (nested ones as a tower, e.g.
+  Kerr-Schild's ``r``), ``exp``, ``log``, ``LambertW`` and symbolic powers,
+  each with its derivation rule. Fractions are kept reduced by gcd, so an
+  identity is proved when its residual reduces to 0. A sum of several
+  coordinate-dependent roots or transcendental functions in the metric
+  (``1 + m1/sqrt(R1) + m2/sqrt(R2)``) is carried as an opaque function of the
+  coordinates (:attr:`Geometry.opaque`), expanded only inside zero tests.
 * ``"sympy"``: the fallback when a chart uses something the field cannot
-  represent (``Abs``, ``sign``, inverse trigonometric functions, ``LambertW``,
-  cube roots...): sympy expressions with ``cancel`` as the normal form and
-  ``simplify`` as a last resort, run in a child process under the budget.
+  represent (``Abs``, ``sign``, inverse trigonometric functions, other
+  branches of ``LambertW``, cube roots of sums...): sympy expressions with
+  ``cancel`` as the normal form
+  and ``simplify`` as a last resort, run in a child process under the budget.
   :attr:`Geometry.path` and :attr:`Geometry.fallback_reason` say which.
 
 Proof strategy (:meth:`Geometry.verify`): a residual function ``fn(X)``
@@ -28,8 +33,9 @@ second derivatives come from the symbolic side, everything else is computed
 per point in exact rationals, or in interval arithmetic when a value is not
 rational, for instance with ``pi`` or ``exp``); any definite non-zero value is
 a failure with a counterexample. Then ``fn(geometry)`` is computed
-symbolically and every component must reduce to zero within the time budget,
-else the result is ``inconclusive`` (method ``sampled``), never ``pass``.
+symbolically and every component must reduce to zero within the time budget
+(CPU seconds), else the result is ``inconclusive`` (method ``sampled``), never
+``pass``.
 """
 
 from __future__ import annotations
@@ -63,6 +69,7 @@ _MP_EXTRA = {
     "sign": lambda x: (x > 0) - (x < 0),
 }
 DEFAULT_SAMPLES = 8
+QUICK_SAMPLES = 3  # points evaluated before the symbolic proof (the rest only when it does not succeed)
 
 
 # ---------------------------------------------------------------------------
@@ -499,7 +506,20 @@ class Geometry(_Curvature):
         """Exact zero test (flint: the reduced fraction is 0, opaque sub-expressions expanded; sympy:
         cancel, then simplify)."""
         if isinstance(v, Elem):
-            return v.F.is_zero(v)
+            if not v.c:
+                return True
+            F = v.F
+            if not F.uses_alias(v):
+                return False
+            # expanding opaque sub-expressions can be costly: a point where v is certainly non-zero settles it
+            for pd in self._sample(1):
+                try:
+                    with pd.precision():
+                        if pd.zero_test(pd.ev(v)) is False:
+                            return False
+                except (ZeroDivisionError, ValueError):
+                    pass
+            return F.is_zero(v)
         v = sp.sympify(v)
         if v == 0 or sp.cancel(v) == 0:
             return True
@@ -548,6 +568,8 @@ class Geometry(_Curvature):
         An opaque sub-expression (see :attr:`opaque`) appears as itself, its derivatives evaluated;
         with ``opaque=True`` as its placeholder function instead (compact; see :meth:`legend`)."""
         if isinstance(v, Elem):
+            if v.F.uses_alias(v) and self.is_zero(v):
+                return sp.Integer(0)  # zero only once the opaque sub-expressions are spelled out
             return v.F.to_sympy(v, opaque=opaque)
         return sp.factor(v) if v != 0 else sp.Integer(0)
 
@@ -704,43 +726,42 @@ class Geometry(_Curvature):
             return pdata
         return None
 
-    @cached_property
-    def _points(self):
-        pts = []
-        attempts = 0
-        while len(pts) < self.samples and attempts < self.samples * 3:
-            attempts += 1
+    def _sample(self, k: int):
+        """The first ``k`` seeded sample points (fewer if the domain gives none), drawn on demand."""
+        pts = self.__dict__.setdefault("_pts", [])
+        while len(pts) < min(k, self.samples) and self.__dict__.get("_attempts", 0) < self.samples * 3:
+            self.__dict__["_attempts"] = self.__dict__.get("_attempts", 0) + 1
             p = self.draw_point()
             if p is None:
+                self.__dict__["_attempts"] = self.samples * 3  # the domain gives no point: stop trying
                 break
             pts.append(p)
-        return pts
+        return pts[:k]
 
     def sample_points(self):
         """The seeded sample points (list of :class:`PointData`), drawn once."""
-        return list(self._points)
+        return list(self._sample(self.samples))
 
     # -- verification --------------------------------------------------------
-    def verify(self, fn: Callable[[Any], dict], *, budget: float | None = None, what: str = "the claim") -> Outcome:
-        """Sampled stage, then symbolic proof of ``fn(X) == 0`` component-wise."""
-        budget = self.budget if budget is None else budget
-        agreed = inexact = 0
+    def _sampled_stage(self, fn, what, points, counts):
+        """Evaluate ``fn`` at ``points``; a definite non-zero gives a failing :class:`Outcome`."""
         import mpmath
 
-        for pd in self.sample_points():
+        for pd in points:
             try:
                 with mpmath.workdps(DIGITS + 10), arb_precision():
                     res = fn(pd)
             except (ZeroDivisionError, ValueError):
                 continue
             bad = None
+            inexact = False
             for name, v in res.items():
                 z = pd.zero_test(v)
                 if z is False:
                     bad = (name, v)
                     break
                 if z is None:
-                    pd.inexact = True
+                    inexact = pd.inexact = True
             if bad is not None:
                 return Outcome(
                     "fail",
@@ -751,20 +772,37 @@ class Geometry(_Curvature):
                         "component": bad[0],
                         "residual": _fmt_number(bad[1]),
                     },
-                    points=agreed,
-                    inexact_points=inexact,
+                    points=counts[0],
+                    inexact_points=counts[1],
                     path=self.path,
                 )
-            agreed += 1
-            if pd.inexact:
-                inexact += 1
-        if not self.sample_points():
+            counts[0] += 1
+            counts[1] += inexact
+        return None
+
+    def verify(self, fn: Callable[[Any], dict], *, budget: float | None = None, what: str = "the claim") -> Outcome:
+        """Sampled stage, then symbolic proof of ``fn(X) == 0`` component-wise.
+
+        The first :data:`QUICK_SAMPLES` points are evaluated before the proof; the remaining
+        ``samples`` points only when the proof does not succeed (as evidence for an inconclusive
+        result, or to find a counterexample)."""
+        budget = self.budget if budget is None else budget
+        counts = [0, 0]  # agreeing points, of which inexact
+        failed = self._sampled_stage(fn, what, self._sample(QUICK_SAMPLES), counts)
+        if failed is not None:
+            return failed
+        nonzero, err = self._symbolic(fn, budget)
+        if err or nonzero:
+            failed = self._sampled_stage(fn, what, self.sample_points()[QUICK_SAMPLES:], counts)
+            if failed is not None:
+                return failed
+        agreed, inexact = counts
+        if not self._sample(1):
             sampled_note = "no valid sample point could be drawn from the domain"
         else:
             sampled_note = f"{agreed} sample points agreed" + (
                 f" ({inexact} in {_INEXACT[self.field is None]}, not exact)" if inexact else ""
             )
-        nonzero, err = self._symbolic(fn, budget)
         if err == "budget":
             return Outcome(
                 "inconclusive",

@@ -56,23 +56,32 @@ def residuals(spec, claim):
                     # 8 pi T_ab = 2 (F_ac F_b^c - g_ab F_cd F^cd / 4), F_cd F^cd = -F2
                     v = _total(X, (F[a][c] * Fmix[b][c] for c in range(n) if not z(F[a][c]) and not z(Fmix[b][c])))
                     rhs[a][b] = (v + X.g[a][b] * F2 / 4) * 2
+            # Maxwell: nabla^a F_ab = g^ac d_c F_ab - Gamma^e F_eb + Gamma^e_cb F_e^c, with the contracted
+            # Christoffel symbol Gamma^e = g^ac Gamma^e_ac (the g^ac Gamma^e_cb F_ae term, rewritten with
+            # g^ac F_ae = -F_e^c)
             G = X.christoffel
+            Gc = [
+                _total(X, (gi[a][c] * G[e][a][c] for a in range(n) for c in range(n) if not z(gi[a][c])))
+                for e in range(n)
+            ]
             for b in range(n):
-                # nabla^a F_ab = g^ac (d_c F_ab - Gamma^e_ca F_eb - Gamma^e_cb F_ae)
                 terms = []
                 for a in range(n):
+                    if a == b:
+                        continue
                     for c in range(n):
                         if z(gi[a][c]):
                             continue
-                        parts = [X.ddval(A[b], c, a), -X.ddval(A[a], c, b)]
-                        for e in range(n):
-                            if not z(G[e][c][a]) and not z(F[e][b]):
-                                parts.append(-(G[e][c][a] * F[e][b]))
-                            if not z(G[e][c][b]) and not z(F[a][e]):
-                                parts.append(-(G[e][c][b] * F[a][e]))
-                        d = _total(X, parts)
+                        d = X.ddval(A[b], c, a) - X.ddval(A[a], c, b)
                         if not z(d):
                             terms.append(gi[a][c] * d)
+                terms += [-(Gc[e] * F[e][b]) for e in range(n) if not z(Gc[e]) and not z(F[e][b])]
+                terms += [
+                    G[e][c][b] * Fmix[e][c]
+                    for e in range(n)
+                    for c in range(n)
+                    if not z(G[e][c][b]) and not z(Fmix[e][c])
+                ]
                 out[X.label("maxwell", b)] = _total(X, terms)
         elif claim in ("perfect-fluid", "dust"):
             fl = spec.fluid

@@ -452,3 +452,172 @@ def test_christoffel_schwarzschild():
     assert exact_equal(geo, G[0][0][1], M / (r * (r - 2 * M)))
     assert exact_equal(geo, G[2][3][3], -sp.sin(th) * sp.cos(th))
     assert exact_equal(geo, G[3][2][3], sp.cos(th) / sp.sin(th))
+
+
+# ---------------------------------------------------------------------------
+# generators of the fast path: nested roots, LambertW, opaque sub-expressions, exponentials
+
+
+def test_nested_root_derivative_matches_sympy():
+    # d/dx sqrt(x + sqrt(x^2 + 1)): the engine's derivation rules against sympy.diff (reference library)
+    e = sp.sqrt(x + sp.sqrt(x**2 + 1)) * y + sp.sqrt(x + sp.sqrt(x**2 + 1)) ** 3
+    geo = Geometry(chart((x, y), sp.diag(1, e**2), domain=(x > 0,)))
+    assert geo.path == "flint"
+    assert any(s.tower for s in geo.field.sqrts)  # a root whose radicand holds a root
+    for i, c in enumerate((x, y)):
+        assert exact_equal(geo, geo.dval(e, i), sp.diff(e, c))
+    assert exact_equal(geo, geo.ddval(e, 0, 0), sp.diff(e, x, 2))
+
+
+def test_nested_root_curvature_matches_sympy():
+    # dx^2 + f(x)^2 dy^2 has Gaussian curvature -f''/f, so R = -2 f''/f (do Carmo, Differential Geometry of
+    # Curves and Surfaces (1976), sec. 4-3, exercise on orthogonal parametrisations; recalled from memory);
+    # f''/f itself is evaluated by sympy.diff
+    f = sp.sqrt(x + sp.sqrt(x**2 + 1))
+    geo = Geometry(chart((x, y), sp.diag(1, f**2), domain=(x > 0,)))
+    assert exact_equal(geo, geo.ricci_scalar, -2 * sp.diff(f, x, 2) / f)
+    wrong = Geometry(chart((x, y), sp.diag(1, f**2), domain=(x > 0,)))
+    out = wrong.verify(lambda X: {"R": X.ricci_scalar - X.val(2 * sp.diff(f, x, 2) / f)})
+    assert out.status == "fail" and out.method == "sampled"
+
+
+def test_kerr_schild_root_is_a_tower_and_inverse_metric_is_exact():
+    # Kerr-Schild form g = eta + f k k with r from r^4 - (x^2 + y^2 + z^2 - a^2) r^2 - a^2 z^2 = 0:
+    # R. P. Kerr, Phys. Rev. Lett. 11 (1963) 237; M. Visser, The Kerr spacetime: a brief introduction (2007),
+    # eqs. 10-13 (recalled from memory). The inverse is g^ab = eta^ab - f k^a k^b with k null.
+    rho2 = x**2 + y**2 + z**2 - a**2
+    R = sp.sqrt(rho2 / 2 + sp.sqrt(rho2**2 / 4 + a**2 * z**2))
+    k = [1, (R * x + a * y) / (R**2 + a**2), (R * y - a * x) / (R**2 + a**2), z / R]
+    f = 2 * M * R**3 / (R**4 + a**2 * z**2)
+    eta = sp.diag(-1, 1, 1, 1)
+    g = eta + f * sp.Matrix(4, 4, lambda i, j: k[i] * k[j])
+    spec = chart((t, x, y, z), g, (M, a), domain=(z > 0,), ranges=(M > 0, a > 0, a < M))
+    geo = Geometry(spec)
+    assert geo.path == "flint" and any(s.tower for s in geo.field.sqrts)
+    # R really is the root: R^4 - rho2 R^2 - a^2 z^2 = 0 exactly
+    assert geo.is_zero(geo.val(R**4 - rho2 * R**2 - a**2 * z**2))
+    k_up = [-1, k[1], k[2], k[3]]
+    for i in range(4):
+        for j in range(4):
+            assert exact_equal(geo, geo.ginv[i][j], eta[i, j] - f * k_up[i] * k_up[j])
+    assert geo.is_zero(geo.det + 1)
+
+
+def test_lambertw_derivative_and_exp_rewrite():
+    # W e^W = z gives W' = W / (z (1 + W)) (R. M. Corless et al., On the Lambert W function, Adv. Comput. Math. 5
+    # (1996) 329, eq. 3.2; recalled from memory), compared with sympy.diff
+    T, X_ = sp.symbols("T X", real=True)
+    w = sp.LambertW((X_**2 - T**2) * sp.exp(-1))
+    e = w**2 + sp.exp(-w) * X_ + 1 / (1 + w)
+    geo = Geometry(chart((T, X_), sp.diag(-1, 1 + w**2), domain=(T**2 - X_**2 < 1,)))
+    for i, c in enumerate((T, X_)):
+        assert exact_equal(geo, geo.dval(e, i), sp.diff(e, c))
+    assert not any(g.kind == "exp" for g in geo.field.base)  # exp(-W) = W/z, not a new generator
+
+
+def test_lambertw_of_u_exp_u_only_where_the_branch_is_right():
+    from gravicat._ratfun import simplify_lambertw
+
+    u = r / (2 * M) - 1
+    w = sp.LambertW(u * sp.exp(u))
+    # principal branch: W(u e^u) = u exactly when u >= -1, here from r > 2M
+    assert simplify_lambertw(w, (r,), (M,), (r > 2 * M,)) == u
+    # u >= -1 does not follow from r > -M: W stays
+    assert simplify_lambertw(w, (r,), (M,), (r > -M,)).has(sp.LambertW)
+    assert simplify_lambertw(w, (r,), (M,), ()).has(sp.LambertW)
+
+
+def test_kruskal_szekeres_is_vacuum_on_the_fast_path():
+    # ds^2 = 32 M^3/r e^(-r/2M) (-dT^2 + dX^2) + r^2 dOmega^2 with (r/2M - 1) e^(r/2M) = X^2 - T^2:
+    # C. W. Misner, K. S. Thorne and J. A. Wheeler, Gravitation (1973), eq. 31.14 (recalled from memory)
+    T, X_ = sp.symbols("T X", real=True)
+    rr = 2 * M * (1 + sp.LambertW((X_**2 - T**2) * sp.exp(-1)))
+    conf = 32 * M**3 / rr * sp.exp(-rr / (2 * M))
+    spec = chart(
+        (T, X_, th, ph),
+        sp.diag(-conf, conf, rr**2, rr**2 * sp.sin(th) ** 2),
+        (M,),
+        domain=(T**2 - X_**2 < 1, th > 0, th < sp.pi),
+        ranges=(M > 0,),
+    )
+    geo = Geometry(spec)
+    assert geo.path == "flint"
+    out = geo.verify(_vacuum)
+    assert out.status == "pass" and out.method == "symbolic", out
+    assert exact_equal(geo, geo.kretschmann, 48 * M**2 / rr**6)
+
+
+def test_exponentials_of_one_atom_share_a_generator():
+    # exp(r/2M) = exp(r/4M)^2 must reduce to zero (one generator exp(r/4M)), and a false variant fails
+    ok = prove_zero({"e": sp.exp(r / (2 * M)) - sp.exp(r / (4 * M)) ** 2}, (r,), (M,), (r > 0, M > 0))
+    assert ok.status == "pass" and ok.method == "symbolic"
+    bad = prove_zero({"e": sp.exp(r / (2 * M)) - sp.exp(r / (4 * M))}, (r,), (M,), (r > 0, M > 0))
+    assert bad.status == "fail"
+
+
+def _majumdar_papapetrou(U):
+    # ds^2 = -dt^2/U^2 + U^2 (dx^2 + dy^2 + dz^2), A = dt/U: electrovacuum iff U is harmonic in flat space:
+    # S. D. Majumdar, Phys. Rev. 72 (1947) 390; A. Papapetrou, Proc. R. Irish Acad. A 51 (1947) 191;
+    # J. B. Hartle and S. W. Hawking, Commun. Math. Phys. 26 (1972) 87, eq. 2.1 (recalled from memory)
+    m1, m2, d = sp.symbols("m1 m2 d", positive=True)
+    U = U(m1, m2, d)
+    return chart(
+        (t, x, y, z),
+        sp.diag(-1 / U**2, U**2, U**2, U**2),
+        (m1, m2, d),
+        claim="electrovacuum",
+        potential=(1 / U, 0, 0, 0),
+        domain=(x > 0,),
+    )
+
+
+def _two_centres(m1, m2, d):
+    return 1 + m1 / sp.sqrt(x**2 + y**2 + (z - d) ** 2) + m2 / sp.sqrt(x**2 + y**2 + (z + d) ** 2)
+
+
+def test_opaque_sum_majumdar_papapetrou_electrovacuum():
+    from gravicat.plugins.field_equations import residuals
+
+    spec = _majumdar_papapetrou(_two_centres)
+    geo = Geometry(spec)
+    assert geo.path == "flint" and len(geo.opaque) == 1  # U is carried as an opaque function of x, y, z
+    out = geo.verify(residuals(spec, "electrovacuum"))
+    assert out.status == "pass" and out.method == "symbolic", out
+    # in terms of the placeholder, g_tt is -1/X1^2; expanded, it is in the chart's own symbols
+    (ph_,) = geo.opaque
+    assert sp.simplify(geo.to_sympy(geo.g[0][0], opaque=True) + 1 / ph_**2) == 0
+    explicit = geo.to_sympy(geo.christoffel[1][0][0])
+    assert not explicit.atoms(sp.core.function.AppliedUndef) and explicit.free_symbols <= set(spec.coords + spec.params)
+    assert "X1(x, y, z) = " in geo.legend()
+
+
+def test_opaque_sum_that_is_not_harmonic_fails():
+    from gravicat.plugins.field_equations import residuals
+
+    def U(m1, m2, d):  # the second centre's 1/|x - x2| replaced by |x - x2|: not harmonic
+        return 1 + m1 / sp.sqrt(x**2 + y**2 + (z - d) ** 2) + m2 * sp.sqrt(x**2 + y**2 + (z + d) ** 2)
+
+    spec = _majumdar_papapetrou(U)
+    geo = Geometry(spec)
+    assert geo.opaque
+    out = geo.verify(residuals(spec, "electrovacuum"))
+    assert out.status == "fail" and out.counterexample is not None
+
+
+def test_no_opaque_sums_in_rational_or_single_root_metrics():
+    from gravicat._ratfun import find_aliases
+
+    assert not find_aliases(list(kerr().metric), kerr().coords)
+    interior = -((3 * sp.sqrt(1 - 2 * M / 5) - sp.sqrt(1 - 2 * M * r**2 / 125)) ** 2) / 4
+    assert not find_aliases([interior], (t, r, th, ph))  # one coordinate-dependent root only
+
+
+def test_fallback_budget_is_cpu_time():
+    from gravicat.geometry import _run_limited
+
+    def spin():
+        while True:
+            pass
+
+    out, err = _run_limited(spin, 1)
+    assert (out, err) == ({}, "budget")

@@ -210,6 +210,19 @@ def test_claim_none_reports_einstein_components():
     assert "G[t,t]" in comps and res["field-equations"].method == Method.SYMBOLIC
 
 
+def test_claim_none_with_an_opaque_sum_names_it():
+    # Alcubierre's top-hat shape: a sum of two tanh of a root (M. Alcubierre, Class. Quantum Grav. 11 (1994) L73,
+    # eq. 6); the report is in terms of the sum and its derivatives, with the sum spelled out once
+    vs, s_, R_ = sp.symbols("vs sigma R", positive=True)
+    rs = sp.sqrt((x - vs * t) ** 2 + y**2 + z**2)
+    f = (sp.tanh(s_ * (rs + R_)) - sp.tanh(s_ * (rs - R_))) / (2 * sp.tanh(s_ * R_))
+    g = sp.Matrix([[vs**2 * f**2 - 1, -vs * f, 0, 0], [-vs * f, 1, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]])
+    res = run("field-equations", chart((t, x, y, z), g, (vs, s_, R_), claim="none"))["field-equations"]
+    assert res.status == Status.PASS and res.data["einstein"]
+    assert "where X1(t, x, y, z) = " in res.detail and "X1(t, x, y, z)" in res.data["opaque"]
+    assert all("X1(t, x, y, z)" in v for v in res.data["einstein"].values())
+
+
 # -- invariants --------------------------------------------------------------
 
 
@@ -271,6 +284,13 @@ def test_limits_resolved_flat_when_and_asymptotic():
     assert res["limits:wrong"].status == Status.FAIL
     assert res["limits:flat-when[M=0]"].status == Status.PASS
     assert res["limits:asymptotically-flat"].status == Status.PASS
+
+
+def test_flat_when_that_degenerates_the_chart_is_skipped():
+    # a chart scaled by M (as Kruskal-Szekeres coordinates are) has det g = 0 at M = 0: no flatness to test there
+    spec = chart((t, x), sp.diag(-(M**2), M**2), (M,), flat_when=({M: sp.Integer(0)},), ranges=(M > 0,))
+    res = run("limits", spec)["limits:flat-when[M=0]"]
+    assert res.status == Status.SKIPPED and "degenerates" in res.detail
 
 
 def test_limits_skipped_without_resolver_and_not_flat():

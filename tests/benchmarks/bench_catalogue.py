@@ -231,6 +231,15 @@ def main(argv=None):
             + (f"; {other}" if other else "")
         )
     print()
+    for c in cases:
+        cf, fr, tb = c["careful"], c["frac"], c["textbook"]
+        parts = [f"careful sympy {cf['cpu']:.2f} s ({cf['value'] or cf['error']})"]
+        if tb:
+            capped = tb["error"] == "cap"
+            parts.append(f"textbook > {args.textbook_cap:g} s (stopped)" if capped else f"textbook {tb['cpu']:.1f} s")
+        if fr:
+            parts.append(f"sympy fraction field {fr['cpu']:.2f} s")
+        print(f"baselines, {c['case']}: " + "; ".join(parts))
     print(
         f"bundled charts: {len(rows) - len(cases) - 4}, CPU seconds in all {total_cpu:.1f}, "
         f"largest peak memory {worst_rss:.0f} MB (target <= 500 MB)"
