@@ -16,23 +16,26 @@ factor of 2, a swapped symbol, ``sin`` for ``cos``. :func:`find_repairs` looks f
    expression.
 3. **Screening.** Every candidate is evaluated at the same few points of the chart's domain
    (drawn once by :class:`gravicat.geometry.Geometry` from the failing chart, so they are
-   the points ``check`` samples): the metric, its first and second derivatives and the
-   matter fields are computed as second-order jets in ball arithmetic (python-flint
-   ``arb``, 256 bits: every value is an interval certain to contain the exact one), and the
-   claim's residual follows from the curvature formulas. A candidate is discarded as soon
-   as one residual component is certainly non-zero at one point; it must hold at every
-   point, for the failing checks and for the signature / field-equation / limit checks
-   that passed before. Candidates are screened in parallel (``jobs`` forked processes).
+   the points ``check`` samples, plus the counterexample point of each failing check): the
+   metric, its first and second derivatives and the matter fields are computed as
+   second-order jets in ball arithmetic (python-flint ``arb``, 256 bits: every value is an
+   interval certain to contain the exact one), and the claim's residual follows from the
+   curvature formulas. A candidate is discarded as soon as one residual component is
+   certainly non-zero at one point; it must hold at every point, for the failing checks and
+   for the signature / field-equation / limit checks that passed before. Candidates are
+   screened in parallel (``jobs`` forked processes).
 4. **Proof.** Each survivor is written into a copy of the document, validated with
    :func:`gravicat.metricfile.validate`, and checked again by the registered verifiers
-   (exact sampled stage, then the symbolic proof). A survivor that still fails, or that
-   breaks a check which passed before, is dropped.
+   (exact sampled stage, then the symbolic proof), in a child process with a hard time
+   limit. A survivor that still fails, or that breaks a check which did not fail before, is
+   dropped.
 
-Suggestions are ranked by edit size (one edit before two), then by proof status and by how
-common the kind of slip is. A suggestion is a hypothesis to be checked against the source
-paper: several different metrics may satisfy the same claim (a vacuum metric with the sign
-of the mass flipped is still a vacuum metric), which is why the checks that passed before
-must keep passing.
+Suggestions are ranked by edit size (one edit before two), then by how many other checks that
+failed before still fail (a repair that also mends a failing transform or observer comes
+first), then by proof status and by how common the kind of slip is. A suggestion is a
+hypothesis to be checked against the source paper: several different metrics may satisfy the
+same claim (a vacuum metric with the sign of the mass flipped is still a vacuum metric), which
+is why the checks that passed before must keep passing.
 """
 
 from __future__ import annotations
@@ -1604,6 +1607,8 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
                     add(bpath, "drop-term", f"drop the term '{text}'{where}", lambda n: n.left)
                 add(tpath, "factor-2", f"multiply '{text}' by 2{where}", lambda n: _times(n, Fraction(2)))
                 add(tpath, "factor-2", f"divide '{text}' by 2{where}", lambda n: _times(n, Fraction(1, 2)))
+                if isinstance(t, ast.BinOp) and isinstance(t.op, _ADDITIVE) and not names_in(t) & diffs:
+                    implicit_power(t, tpath)  # a parenthesised sum inside a sum: a lost power
                 exchange_edits(t, tpath)
                 visit(t, tpath, False)
             return
@@ -1614,8 +1619,8 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
             m = len(operands)
             for k, t in enumerate(operands):
                 tpath = list(path) + ["left"] * (m - 1 - k) + (["right"] if k else [])
-                if isinstance(t, ast.BinOp) and isinstance(t.op, _ADDITIVE) and not names_in(t) & diffs:
-                    implicit_power(t, tpath)
+                if isinstance(t, ast.BinOp) and not isinstance(t.op, ast.Pow) and not names_in(t) & diffs:
+                    implicit_power(t, tpath)  # a parenthesised sum or product as a factor: a lost power
                 visit(t, tpath, False)
             return
         if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Pow):
@@ -2036,6 +2041,34 @@ def _sample_points(model: _Model, geometry, k: int, seed: int) -> list[_PointEnv
     return out
 
 
+def _counterexample_points(model: _Model, failed: list[CheckResult], start: int, seed: int) -> list[_PointEnv]:
+    """The points where the failing checks found their counterexamples, as extra screening points.
+
+    They are the most telling points (a signature that degenerates at theta = pi/2 is only seen
+    there). A point is used when it gives every coordinate and parameter a constant value.
+    """
+    out: list[_PointEnv] = []
+    seen: set = set()
+    constants = Names()
+    for r in failed:
+        point = (r.counterexample or {}).get("point") or {}
+        if not all(x in point for x in (*model.coords, *model.params)):
+            continue
+        key = tuple(sorted((k, str(point[k])) for k in (*model.coords, *model.params)))
+        if key in seen:
+            continue
+        seen.add(key)
+        try:
+            with _Prec(_PREC):
+                ev = _Evaluator({}, {}, lambda *_: None, 0)
+                values = {k: ev.ev(check_expression(str(point[k]), constants, source="counterexample", field=k)).v
+                          for k in (*model.coords, *model.params)}
+        except (CatalogError, _Undefined, ZeroDivisionError, ValueError):
+            continue
+        out.append(_PointEnv(model, values, start + len(out), seed))
+    return out
+
+
 def _claims(model: _Model, baseline: list[CheckResult], docs: Mapping[str, MetricDocument]) -> tuple[list, list]:
     """(claims to screen, names of the baseline checks that could not be screened)."""
     status = {r.check: r.status.value for r in baseline}
@@ -2189,6 +2222,7 @@ def _repair_chart(doc, cr: ChartRepair, verifiers, docs, max_edits, budget, proo
     # what passed before: a repair may not break any of them
     cr.baseline.extend(_run_limited(list(_STATE.get("others", ())), geometry, min(proof_budget, OTHERS_LIMIT)))
     pts = _sample_points(model, geometry, points, seed)
+    pts += _counterexample_points(model, [r for r in cr.baseline if r.check in cr.failing], len(pts), seed)
     cr.points = len(pts)
     if not pts:
         cr.note = "no valid sample point could be drawn from the chart's domain"
@@ -2303,7 +2337,10 @@ def _repair_chart(doc, cr: ChartRepair, verifiers, docs, max_edits, budget, proo
                                   suggested=cand.texts[e.key]))
         cr.suggestions.append(Suggestion(chart=cr.chart, edits=edits, status=worst, checks=results,
                                          document=repaired, still_failing=sorted(bad)))
-    cr.suggestions.sort(key=lambda s: (s.size, s.status != "pass", sum(KINDS.index(e.kind) for e in s.edits)))
+    # rank: fewer edits; then the repairs that also mend other checks that failed (a transform, an
+    # observer, a published invariant); then proved before sampled; then how common the slip is
+    cr.suggestions.sort(key=lambda s: (s.size, len(s.still_failing), s.status != "pass",
+                                       sum(KINDS.index(e.kind) for e in s.edits)))
 
 
 # =========================================================================== writing a repair back

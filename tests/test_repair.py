@@ -388,3 +388,18 @@ def test_matrix_metric_repaired_in_both_symmetric_places(rcli, tmp_path):
     expected = sp.Matrix([[-f, 1, 0, 0], [1, 0, 0, 0], [0, 0, s["r"] ** 2, 0],
                           [0, 0, 0, s["r"] ** 2 * sp.sin(s["theta"]) ** 2]])
     assert same_metric(spec, expected)
+
+
+def test_several_suggestions_need_pick(rcli, tmp_path):
+    # Majumdar-Papapetrou: U = 1 + m1/|x - x1| + m2/|x - x2| (S. D. Majumdar, Phys. Rev. 72 (1947) 390;
+    # A. Papapetrou, Proc. R. Irish Acad. A 51 (1947) 191; value recalled from memory) with the square of
+    # (z + d) lost: restoring it and dropping the second hole both give an electrovacuum metric
+    path = slip(tmp_path, "majumdar-papapetrou", "m2/sqrt(x**2 + y**2 + (z + d)**2)", "m2/sqrt(x**2 + y**2 + (z + d))")
+    before = path.read_text()
+    r = rcli("repair", str(path), "--write")
+    assert r.exit_code == 2 and r.stderr.startswith("Error: --write: 2 suggestions: choose one with --pick RANK")
+    assert "  1. charts.cartesian.define.U  [exponent] 'z + d' -> '(z + d) ** 2'" in r.stdout
+    assert path.read_text() == before
+    r = rcli("repair", str(path), "--write", "--pick", "1")
+    assert r.exit_code == 0, r.output
+    assert path.read_text() == BUNDLED["majumdar-papapetrou"].read_text()

@@ -15,7 +15,7 @@ from gravicat.errors import CheckFailed, InputError
 app = typer.Typer()
 
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented shape, see README).")]
-BudgetOpt = Annotated[float, typer.Option("--budget", min=0.1, help="Seconds per symbolic proof before a check "
+BudgetOpt = Annotated[float, typer.Option("--budget", min=0.1, help="CPU seconds per symbolic proof before a check "
                                                                     "is reported inconclusive.")]
 
 

@@ -171,6 +171,7 @@ def _case(case, vs, docs, jobs, budget, send) -> None:
     cr = report.charts[0]
     found = [same_chart(doc, s.document, chart) for s in cr.suggestions] if cr.failing else []
     send.send({"broke": bool(cr.failing), "recovered": any(found), "false": sum(1 for f in found if not f),
+               "rank": found.index(True) + 1 if any(found) else None,
                "seconds": t_repair, "check_seconds": t_check, "candidates": cr.candidates,
                "exhausted": cr.exhausted, "suggestions": len(cr.suggestions), "note": cr.note})
 
@@ -249,6 +250,7 @@ def run_recovery(seed: int, jobs: int, entries: list[str] | None, limit: int | N
           + "".join(f"\n  {r['entry']} {r['chart']} {r['kind']} {r['field']}" for r in unknown))
     print(f"original among the repairs:       {recovered} ({100 * rate:.1f} %; target {100 * TARGET_RECOVERY:.0f} %)")
     print(f"false suggestions (other metrics passing every check): {sum(r['false'] for r in counted)}")
+    print(f"original ranked first:            {sum(1 for r in counted if r.get('rank') == 1)} of {recovered}")
     if times:
         print(f"median repair time:               {statistics.median(times):.2f} s "
               f"(max {max(times):.2f} s; {jobs} job(s))")
