@@ -58,7 +58,16 @@ from typing import Any
 
 from gravicat.checks import CheckResult, Method, Status
 from gravicat.errors import CatalogError, InputError
-from gravicat.expr import Names, canonical, check_expression, check_expression_size, names_in
+from gravicat.expr import (
+    _ADDITIVE,
+    _MULTIPLICATIVE,
+    Names,
+    _chain,
+    canonical,
+    check_expression,
+    check_expression_size,
+    names_in,
+)
 from gravicat.metricfile import FUNCTION_DECL, MetricDocument, canonical_json, validate
 
 __all__ = [
@@ -610,17 +619,9 @@ def _const_value(node) -> Fraction | None:
 
 
 def _flatten(node, family):
-    ops = []
-    rights = []
-    while isinstance(node, ast.BinOp) and isinstance(node.op, family):
-        ops.append(type(node.op))
-        rights.append(node.right)
-        node = node.left
-    return [node, *reversed(rights)], list(reversed(ops))
-
-
-_ADDITIVE = (ast.Add, ast.Sub)
-_MULTIPLICATIVE = (ast.Mult, ast.Div)
+    """The left-deep chain walk of the parser (operands, operator classes)."""
+    operands, ops = _chain(node, family)
+    return operands, [type(op) for op in ops]
 
 
 class _Evaluator:
