@@ -29,6 +29,25 @@ def _filter_relations(rels):
     return tuple(out)
 
 
+def _subs_relations(rels, mapping):
+    """Substitute into domain and range relations; a relation the substitution makes undefined
+    (a side ``0/0`` or ``1/0``, e.g. ``r > Q**2/M`` at ``M = 0``) no longer constrains the limit
+    and is dropped, like one it makes trivially true or false."""
+    import sympy as sp
+
+    bad = (sp.nan, sp.zoo, sp.oo, -sp.oo)
+    out = []
+    for rel in rels:
+        try:
+            sides = [_subs(sp.sympify(a), mapping) for a in rel.args]
+            if any(side.has(*bad) for side in sides):
+                continue
+            out.append(rel.func(*sides))
+        except (TypeError, ValueError, ZeroDivisionError):
+            continue
+    return _filter_relations(out)
+
+
 def _subs(expr, mapping):
     """Simultaneous substitution of symbols (structural: much cheaper than ``subs``)."""
     if not mapping:
@@ -140,7 +159,7 @@ class LimitsCheck:
         for i in range(n):
             for j in range(i, n):
                 exprs[geometry.label("g", i, j)] = ours[i, j] - theirs[i, j]
-        rels = _filter_relations([_subs(r, mapping) for r in tuple(spec.param_ranges) + tuple(spec.domain)])
+        rels = _subs_relations(tuple(spec.param_ranges) + tuple(spec.domain), mapping)
         outcome = prove_zero(
             exprs,
             spec.coords,
@@ -170,8 +189,8 @@ class LimitsCheck:
             spec,
             metric=metric,
             params=tuple(p for p in spec.params if p not in sub),
-            domain=_filter_relations([_subs(r, sub) for r in spec.domain]),
-            param_ranges=_filter_relations([_subs(r, sub) for r in spec.param_ranges]),
+            domain=_subs_relations(spec.domain, sub),
+            param_ranges=_subs_relations(spec.param_ranges, sub),
             potential=None,
             fluid=None,
             null_dust=None,
