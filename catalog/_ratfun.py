@@ -11,13 +11,30 @@ constants ``pi`` and ``e``, opaque sub-expressions), held in one
 ``fmpz_mpoly`` context, and the ``s_i`` are *square-root generators* with
 ``s_i**2 = R_i`` (``sqrt(...)``, half integer powers, and ``sin`` of an
 angle, for which ``s**2 = 1 - cos**2``). A radicand ``R_i`` is in ``Q(b)``, or,
-for a nested root such as ``sqrt(w + sqrt(v))``, in ``Q(b)[s_1..s_{i-1}]``
+for a nested root that is not handled as below, in ``Q(b)[s_1..s_{i-1}]``
 (a tower of quadratic extensions).
+
+Algebraic generators (:class:`AlgGen`): a nested root ``r = sqrt(A + c sqrt(B))``
+with ``A``, ``c``, ``B`` free of roots (Kerr-Schild's radius) is one more base
+generator with its defining polynomial ``F = (r**2 - A)**2 - c**2 B`` (cleared
+of denominators) and the derivation of implicit differentiation,
+``dr = -F_x dx / F_r``; the inner root ``sqrt(B)`` is ``(r**2 - A)/c``. When
+``F`` is ``F2 v**2 + F0`` in a coordinate or parameter ``v`` used by no other
+generator, ``v`` is *eliminated*: ``r`` becomes a free variable and ``v`` a
+square-root generator with ``v**2 = -F0/F2`` and ``dv/dv = 1`` (the same field,
+with natural denominators; :meth:`Field._eliminate`). Otherwise numerators are
+kept reduced modulo ``F`` (degree < 4 in ``r``) and denominators free of ``r``
+(conjugates ``r -> -r``, ``r**2 -> -P2/L - r**2``). Either way an element is
+zero exactly when its numerator is, which proves it zero on every root of
+``F``; a non-zero one is a definite non-zero only when ``F`` is irreducible
+(factored once; see :attr:`Field.complete`).
 
 An element is kept as ``sum_m c_m * s^m / d``: ``m`` runs over bit masks of
 square-root generators, ``c_m`` and ``d`` are integer polynomials in the base
 generators, ``d`` is free of square roots (denominators are rationalised,
-highest root first) and the fraction is reduced by gcd. Products reduce
+highest root first) and the fraction is reduced (by trial division with the
+irreducible factors of ``d``, found once per denominator, rather than a
+multivariate gcd each time). Products reduce
 ``s_i**2`` to ``R_i`` at once, so the representation never grows in the
 square roots.
 
@@ -58,6 +75,7 @@ from itertools import combinations_with_replacement
 
 import flint
 import sympy as sp
+from flint.utils.flint_exceptions import DomainError
 
 ARB_BITS = 320  # working precision of the interval-arithmetic sampling fallback
 
@@ -102,9 +120,10 @@ class SqrtGen:
     """A square-root generator ``s`` with ``s**2 = num/den`` (both base polynomials), or, for a
     nested root (``tower``), ``s**2 = radicand``, an element that uses earlier square roots."""
 
-    __slots__ = ("bit", "num", "den", "sym", "trig", "radicand", "tower")
+    __slots__ = ("bit", "num", "den", "sym", "trig", "radicand", "tower", "coord")
 
     def __init__(self, bit, num, den, sym, trig=None, tower=False):
+        self.coord = None  # index of the eliminated coordinate or parameter it stands for (see Field._eliminate)
         self.bit = bit
         self.num = num  # None for a nested root
         self.den = den
@@ -112,6 +131,74 @@ class SqrtGen:
         self.trig = trig  # the BaseGen of the matching cos, for sin generators
         self.radicand = None  # Elem, set after creation
         self.tower = tower
+
+
+class AlgGen:
+    """An algebraic generator ``r = sqrt(A + c sqrt(B))`` (base generator ``index``), a root of
+    ``F = L r**4 + P2 r**2 + P0`` (``(r**2 - A)**2 - c**2 B`` cleared of denominators; ``L``, ``P2``,
+    ``P0`` free of ``r``). While it is in :attr:`Field.algs`, numerators are kept reduced modulo
+    ``F`` (degree < 4 in ``r``) and denominators free of ``r``, so an element is zero exactly when
+    its numerator is; after :meth:`Field._eliminate` it only serves derivatives and point values."""
+
+    __slots__ = ("gen", "index", "poly", "L", "P2", "P0", "low", "r2", "r4", "flip", "A", "c", "B")
+
+    def __init__(self, gen, index, poly, L, P2, P0, r, ngens, A, c, B):
+        self.gen = gen  # the BaseGen
+        self.index = index
+        self.poly = poly  # F
+        self.L, self.P2, self.P0 = L, P2, P0
+        self.r2 = r * r
+        self.r4 = self.r2 * self.r2
+        self.low = P2 * self.r2 + P0  # L r**4 = -low modulo F
+        self.flip = [-x if k == index else x for k, x in enumerate(ngens)]  # r -> -r
+        self.A, self.c, self.B = A, c, B  # elements (free of every root)
+
+
+def _has_root(e) -> bool:
+    """``e`` uses a square-root generator (a non-integer power or ``sin``)."""
+    if e.has(sp.sin):
+        return True
+    return any(not p.exp.is_Integer for p in e.atoms(sp.Pow))
+
+
+def nested_parts(b):
+    """``(A, c, B)`` with ``b = A + c*sqrt(B)`` and ``A``, ``c``, ``B`` free of roots, ``c != 0``
+    (powers of ``sqrt(B)`` are reduced with ``sqrt(B)**2 = B``), or None."""
+    if not isinstance(b, sp.Add) or b.has(sp.sin):
+        return None
+    halves = [p for p in b.atoms(sp.Pow) if not p.exp.is_Integer]
+    if not halves or any(not p.exp.is_Rational or p.exp.q != 2 for p in halves):
+        return None
+    bases = {p.base for p in halves}
+    if len(bases) != 1:
+        return None
+    B = bases.pop()
+    if _has_root(B) or not B.free_symbols:
+        return None
+    S = sp.Dummy("S")
+    e = b.replace(lambda x: x.is_Pow and x.base == B and not x.exp.is_Integer, lambda x: S ** int(2 * x.exp))
+    e = sp.expand(e)
+    A = sp.Integer(0)
+    c = sp.Integer(0)
+    for k, coeff in sp.collect(e, S, evaluate=False).items():
+        if k == 1:
+            k_exp = 0
+        elif k == S:
+            k_exp = 1
+        elif k.is_Pow and k.base == S and k.exp.is_Integer:
+            k_exp = int(k.exp)
+        else:
+            return None
+        if coeff.has(S):
+            return None
+        term = coeff * B ** (k_exp // 2)
+        if k_exp % 2:
+            c += term
+        else:
+            A += term
+    if c == 0 or _has_root(A) or _has_root(c):
+        return None
+    return A, c, B
 
 
 # ---------------------------------------------------------------------------
@@ -170,6 +257,23 @@ class Elem:
             return F.make_reduced(_addc(_scalec(a.c, b.d), b.c), b.d)
         if b.d.is_one():
             return F.make_reduced(_addc(a.c, _scalec(b.c, a.d)), a.d)
+        fa = F._den_factors(a.d) if not a.d.is_constant() else None
+        fb = F._den_factors(b.d) if fa is not None and not b.d.is_constant() else None
+        if fb is not None:
+            # gcd of the denominators from their factorisations; the sum can only cancel factors of it
+            eb = {str(f): e for f, e in fb[1]}
+            common = [(f, min(e, eb[str(f)])) for f, e in fa[1] if str(f) in eb]
+            gi = flint.fmpz(math.gcd(int(fa[0]), int(fb[0])))
+            g = F.ctx.constant(gi)
+            for f, e in common:
+                g = g * f**e
+            da = a.d / g
+            db = b.d / g
+            num = _addc(_scalec(a.c, db), _scalec(b.c, da))
+            if not num:
+                return F.zero
+            num, h = F._divide_out(num, common, gi)
+            return F.make_reduced(num, (a.d / h) * db if not h.is_one() else a.d * db)
         g = a.d.gcd(b.d)
         if g.is_one():
             return F.make_reduced(_addc(_scalec(a.c, b.d), _scalec(b.c, a.d)), a.d * b.d)
@@ -203,19 +307,13 @@ class Elem:
         F.tick()
         a, b = self, other
         if len(a.c) == 1 and len(b.c) == 1 and 0 in a.c and 0 in b.c:
-            an, bn = a.c[0], b.c[0]
-            g1 = an.gcd(b.d) if not b.d.is_one() else None
-            g2 = bn.gcd(a.d) if not a.d.is_one() else None
-            if g1 is not None and not g1.is_one():
-                an = an / g1
-                bd = b.d / g1
-            else:
-                bd = b.d
-            if g2 is not None and not g2.is_one():
-                bn = bn / g2
-                ad = a.d / g2
-            else:
-                ad = a.d
+            an, bn, ad, bd = a.c[0], b.c[0], a.d, b.d
+            if not bd.is_one():
+                cc, bd = F._cancel({0: an}, bd)
+                an = cc[0]
+            if not ad.is_one():
+                cc, ad = F._cancel({0: bn}, ad)
+                bn = cc[0]
             return F.make_reduced({0: an * bn}, ad * bd)
         if F.tower_mask:
             ov = 0
@@ -233,7 +331,7 @@ class Elem:
         if not self.c:
             raise ZeroDivisionError("division by an element that is identically zero")
         if self.is_plain():
-            return F.make_reduced({0: self.d}, self.c[0])
+            return F._inv_plain(self.c[0], self.d)
         # rationalise: multiply by the conjugates until the norm is free of square roots
         n = Elem(F, dict(self.c), F.pone)
         mult = F.one
@@ -617,6 +715,11 @@ class Field:
     provide for arbitrary functions.
     """
 
+    # nested roots as algebraic generators; False restores the tower of quadratic extensions (benchmarks)
+    algebraic_roots = True
+    # denominators whose unknown part has more terms than this are reduced by gcd, not factored
+    FACTOR_LIMIT = 400
+
     def __init__(self, coords, params, exprs, functions=(), extra_order=3, alias_from=(), relations=None):
         self.coords = tuple(coords)
         self.params = tuple(params)
@@ -674,17 +777,33 @@ class Field:
         self._dgen: dict = {}
         self._dlogsqrt: dict = {}
         self._arb_cache: dict = {}
+        self._dfac: dict = {}  # denominator (text) -> its factorisation
+        self._fbase: list = []  # irreducible factors of denominators met so far, with their degrees
+        self.algs: list[AlgGen] = []  # algebraic generators whose relation is applied by reduction
+        self._alg_of: dict = {}  # base index -> AlgGen (reduced or eliminated)
+        self._alg_inner: dict = {}  # canonical radicand key -> the element sqrt(B) = (r**2 - A)/c
+        self._alg_inner_sym: dict = {}
+        self._alg_reducible = False
+        self._elim: dict = {}  # eliminated symbol -> its element (a square-root generator)
         # square roots: sin generators first (their radicand is 1 - cos^2)
         for g in self.base:
             if g.kind == "cos":
                 cpoly = self.ctx.gens()[g.index] if self.base else None
                 s = self._new_sqrt(self.pone - cpoly * cpoly, self.pone, sp.sin(g.data["angle"]), trig=g)
                 g.data["sin"] = s
+        # algebraic generators (nested roots): defining polynomials, then the inner roots they replace
+        for g in self.base:
+            if g.kind == "alg":
+                self._setup_alg(g)
+        if len(self.algs) == 1:
+            self._eliminate(self.algs[0])
         for e in self._sqrt_keys:
             self._sqrt_of(self.element(e))
-        # pi and e are transcendental, so treating them as free generators loses nothing
-        self.complete = all(g.kind in ("coord", "param", "func", "cos", "const", "alias") for g in self.base) and all(
-            s.trig is not None for s in self.sqrts
+        # pi and e are transcendental, so treating them as free generators loses nothing; an
+        # algebraic generator hides no relation when its defining polynomial is irreducible
+        kinds = ("coord", "param", "func", "cos", "const", "alias") + (() if self._alg_reducible else ("alg",))
+        self.complete = all(g.kind in kinds for g in self.base) and all(
+            s.trig is not None or (s.coord is not None and not self._alg_reducible) for s in self.sqrts
         )
         self.alias_index = [g.index for g in self.base if g.kind == "alias"]
         self._alias_set = set(self.alias_index)
@@ -746,7 +865,7 @@ class Field:
                 return
             if x.is_Rational and x.q == 2:
                 self._scan(b)
-                if b not in self._sqrt_keys:
+                if not self._scan_alg(b) and b not in self._sqrt_keys:
                     self._sqrt_keys.append(b)
                 return
             if x.is_Rational:
@@ -809,6 +928,26 @@ class Field:
             self._pending_trig.append(m)
             return
         raise Unsupported(f"{type(e).__name__} is not on the fast path: {e}")
+
+    def _scan_alg(self, b) -> bool:
+        """Register ``sqrt(b)`` as an algebraic generator when ``b = A + c sqrt(B)`` with ``A``, ``c``,
+        ``B`` free of roots (see :func:`nested_parts`), unless an earlier one has the same inner root
+        (two defining polynomials sharing ``sqrt(B)`` would hide a relation between them; the later
+        root then becomes an ordinary square root over the field of the first)."""
+        key = ("alg", b)
+        if key in self._gens:
+            return True
+        if not self.algebraic_roots:
+            return False
+        parts = nested_parts(b)
+        if parts is None:
+            return False
+        A, c, B = parts
+        Bx = sp.expand(B)
+        if any(g.kind == "alg" and g.data["Bx"] == Bx for g in self._gens.values()):
+            return False
+        self._gen(key, "alg", sp.sqrt(b), {"A": A, "c": c, "B": B, "Bx": Bx, "radicand": b})
+        return True
 
     def _finish_scan(self, extra_order):
         for m, q in self._expq.items():
@@ -881,22 +1020,117 @@ class Field:
         return Elem(self, {0: self.ctx.gens()[g.index]}, self.pone)
 
     def make(self, c, d) -> Elem:
-        """Reduce ``c/d`` by the gcd and normalise the sign of ``d``."""
+        """Reduce ``c/d`` by the gcd (numerators modulo the algebraic generators' polynomials first)
+        and normalise the sign of ``d``."""
         c = {m: p for m, p in c.items() if not p.is_zero()}
         if not c:
             return self.zero
+        if self.algs:
+            c, d, _ = self._reduce_alg(c, d)
+            if not c:
+                return self.zero
         if not d.is_one():
+            c, d = self._cancel(c, d)
+        return self.make_reduced(c, d)
+
+    def _den_factors(self, d):
+        """``d = cont * prod f**e``: (cont, [(f, e)]) with ``f`` irreducible, cached; None when the
+        part not found in the factor base is too large to factor cheaply (the caller takes a gcd).
+        Factors met before are found by trial division; only what is left is factored."""
+        key = str(d)
+        if key in self._dfac:
+            return self._dfac[key]
+        cont = d.content()
+        rest = d / self.ctx.constant(cont) if cont != 1 else d
+        facs = []
+        degs = rest.degrees()
+        for f, fdeg in self._fbase:
+            if rest.is_constant():
+                break
+            if any(x > y for x, y in zip(fdeg, degs, strict=True)):
+                continue
+            e = 0
+            while True:
+                try:
+                    rest = rest / f
+                except DomainError:
+                    break
+                e += 1
+            if e:
+                facs.append((f, e))
+                degs = rest.degrees()
+        out = None
+        if rest.is_constant():
+            out = (cont * rest.leading_coefficient(), facs)
+        elif len(rest) <= self.FACTOR_LIMIT:
+            unit, more = rest.factor()
+            for f, e in more:
+                self._fbase.append((f, f.degrees()))
+                facs.append((f, e))
+            out = (cont * unit, facs)
+        if len(self._dfac) > 20000:
+            self._dfac.clear()
+        self._dfac[key] = out
+        return out
+
+    def _cancel(self, c, d):
+        """``c/d`` with the gcd of ``d`` and every component divided out: trial division by the
+        irreducible factors of ``d`` (much cheaper than a multivariate gcd when, as in curvature
+        computations, denominators are products of powers of a few factors), then the integer content."""
+        fd = None if d.is_constant() else self._den_factors(d)
+        if fd is None:
             g = d
             for p in c.values():
                 g = g.gcd(p)
                 if g.is_one():
+                    return c, d
+            return {m: p / g for m, p in c.items()}, d / g
+        cont, facs = fd
+        c, div = self._divide_out(c, facs, cont)
+        return c, (d / div if not div.is_one() else d)
+
+    def _divide_out(self, c, facs, cont):
+        """Divide every component of ``c`` by the largest ``prod f**k`` (``k <= e`` for each
+        ``(f, e)`` of ``facs``) times the largest factor of the integer ``cont`` that divides them
+        all: (new components, the divisor)."""
+        div = self.pone
+        for f, e in facs:
+            k = 0
+            while k < e:
+                try:
+                    c = {m: p / f for m, p in c.items()}
+                except DomainError:
                     break
-            if not g.is_one():
-                c = {m: p / g for m, p in c.items()}
-                d = d / g
-        return self.make_reduced(c, d)
+                k += 1
+            if k:
+                div = div * f**k
+        if abs(cont) != 1:
+            gi = abs(cont)
+            for p in c.values():
+                gi = flint.fmpz(math.gcd(int(gi), int(p.content())))
+                if gi == 1:
+                    break
+            if gi != 1:
+                k = self.ctx.constant(gi)
+                c = {m: p / k for m, p in c.items()}
+                div = div * k
+        return c, div
 
     def make_reduced(self, c, d) -> Elem:
+        if self.algs:
+            c, d, changed = self._reduce_alg(c, d)
+            if not c:
+                return self.zero
+            if changed and not d.is_constant():
+                # a full gcd costs more than it saves here; monomial factors (norms such as a**2 z**2) go
+                g = d.term_content()
+                for p in c.values():
+                    if g.is_one():
+                        break
+                    g = g.gcd(p.term_content())
+                if not g.is_one():
+                    c = {m: p / g for m, p in c.items()}
+                    d = d / g
         if d.leading_coefficient() < 0:
             c = {m: -p for m, p in c.items()}
             d = -d
@@ -938,6 +1172,201 @@ class Field:
             oo >>= 1
             i += 1
         return out, den * extra
+
+    # -- algebraic generators ---------------------------------------------------
+    def _setup_alg(self, g: BaseGen):
+        """Defining polynomial of the algebraic generator ``g`` and the inner root it replaces."""
+        d = g.data
+        A, c, B = (self._el(prepare(d[k])) for k in ("A", "c", "B"))
+        if not (A.is_plain() and c.is_plain() and B.is_plain()) or not c.c:
+            raise Unsupported(f"nested root {g.sym}: parts outside the base field")
+        j = g.index
+        gens = self.ctx.gens()
+        r = Elem(self, {0: gens[j]}, self.pone)
+        u = r * r - A
+        P = (u * u - c * c * B).num0()  # cleared of denominators (the algs list is still empty here)
+        r2 = gens[j] * gens[j]
+        L, rest = divmod(P, r2 * r2)
+        P2, P0 = divmod(rest, r2)
+        if any(q.degrees()[j] > 0 for q in (L, P2, P0)) or L.is_zero():
+            raise Unsupported(f"nested root {g.sym}: unexpected defining polynomial")
+        if L.leading_coefficient() < 0:
+            P, L, P2, P0 = -P, -L, -P2, -P0
+        _cf, facs = P.factor()
+        if sum(e for f, e in facs if f.degrees()[j] > 0) != 1:
+            self._alg_reducible = True  # a non-zero remainder is then not a definite non-zero
+        al = AlgGen(g, j, P, L, P2, P0, gens[j], gens, A, c, B)
+        self.algs.append(al)
+        self._alg_of[j] = al
+        # sqrt(B) = (r**2 - A)/c: the inner root is no generator of its own
+        key, factor = self._canon_sqrt(B.c[0], B.d)
+        self._alg_inner[key] = (r * r - A) / (c * self.const(factor))
+
+    def _eliminate(self, al: AlgGen):
+        """Trade the algebraic generator's relation for a square root: when ``F`` is ``F2 v**2 + F0``
+        in a coordinate or parameter ``v`` that occurs in no other generator (Kerr-Schild's
+        ``r**4 - (x**2 + y**2 + z**2 - a**2) r**2 - a**2 z**2`` in ``y``), the field
+        ``Q(..., v)[r]/(F)`` is ``Q(..., r)[s]/(s**2 - R)`` with ``s = v``, ``R = -F0/F2``: ``r``
+        becomes a free variable (no reduction, natural denominators such as ``r**4 + a**2 z**2``) and
+        ``v`` a square-root generator with ``dv/dv = 1``. Keeps the reduction when no ``v`` fits."""
+        P, j = al.poly, al.index
+        gens = self.ctx.gens()
+        best = None
+        for g in self.base:
+            k = g.index
+            if g.kind not in ("coord", "param") or P.degrees()[k] != 2:
+                continue
+            if any(h is not g and h is not al.gen and g.sym in h.sym.free_symbols for h in self.base):
+                continue
+            if self.alias_sub and any(g.sym in X.free_symbols for X in self.alias_sub):
+                continue
+            v2 = gens[k] * gens[k]
+            F2, F0 = divmod(P, v2)
+            if F2.degrees()[k] > 0 or F0.degrees()[k] > 0 or F2.is_zero() or F0.degrees()[j] <= 0:
+                continue
+            rank = (g.kind != "coord", len(F2), -k)
+            if best is None or rank < best[0]:
+                best = (rank, g, F2, F0)
+        if best is None:
+            return
+        _rank, v, F2, F0 = best
+        self.algs = []  # r is free now
+        s = self._new_sqrt(-F0, F2, v.sym) if F2.leading_coefficient() > 0 else self._new_sqrt(F0, -F2, v.sym)
+        s.coord = v.index
+        self._elim = {v.sym: Elem(self, {1 << s.bit: self.pone}, self.pone)}
+        self._elim_gen = v
+        # every conversion so far used v as a variable: start again
+        self._memo.clear()
+        self._mono.clear()
+        self._dgen.clear()
+        self._dlogsqrt.clear()
+        self._alg_inner.clear()
+        d = al.gen.data
+        A, c, B = (self._el(prepare(d[k])) for k in ("A", "c", "B"))
+        r = self.gen_elem(al.gen)
+        inner = (r * r - A) / c
+        if B.is_plain():
+            key, factor = self._canon_sqrt(B.c[0], B.d)
+            self._alg_inner[key] = inner / self.const(factor)
+        self._alg_inner_sym = {d["B"]: inner}
+
+    def _poly_el(self, p) -> Elem:
+        """A polynomial of the context as an element (an eliminated variable becomes its root)."""
+        if not self._elim or p.degrees()[self._elim_gen.index] <= 0:
+            return self.make({0: p}, self.pone)
+        k = self._elim_gen.index
+        s = next(iter(self._elim.values()))
+        out = self.zero
+        power = self.one
+        rest = p
+        v = self.ctx.gens()[k]
+        while not rest.is_zero():
+            rest, low = divmod(rest, v)  # low: the terms free of v
+            if not low.is_zero():
+                out = out + Elem(self, {0: low}, self.pone) * power
+            power = power * s
+        return out
+
+    def _root_free(self, a: Elem, limit: int = 600):
+        """``a`` (eliminated form) rewritten over the original variables with the algebraic
+        generator reduced modulo its polynomial, when the result does not use it; else None.
+        For display only (the element lives in another representation); small elements only."""
+        al = next(iter(self._alg_of.values()))
+        v = self._elim_gen
+        bit = next(iter(self._elim.values())).c
+        (mask,) = bit
+        if set(a.c) - {0, mask} or sum(len(p) for p in a.c.values()) + len(a.d) > limit:
+            return None
+        # necessary condition, cheap: r -> -r is an automorphism here (R is even in r); a value free of
+        # the root is invariant under it
+        flipped = self.make({m: p.compose(*al.flip) for m, p in a.c.items()}, self.pone) / self.make(
+            {0: a.d.compose(*al.flip)}, self.pone
+        )
+        if (flipped - a).c:
+            return None
+        num = a.c.get(0, self.pzero)
+        if mask in a.c:
+            num = num + a.c[mask] * self.ctx.gens()[v.index]
+        cont, facs = self._den_factors(a.d)
+        saved = self.algs, self._elim
+        self.algs, self._elim = [al], {}
+        try:
+            out = self.make({0: num}, self.ctx.constant(cont))
+            cache = self.__dict__.setdefault("_root_free_inv", {})
+            for f, e in facs:
+                key = str(f)
+                inv = cache.get(key)
+                if inv is None:
+                    inv = cache[key] = self._inv_plain(f, self.pone)
+                out = out * inv**e
+        except (ZeroDivisionError, Unsupported):
+            return None
+        finally:
+            self.algs, self._elim = saved
+        if any(p.degrees()[al.index] > 0 for p in out.c.values()) or out.d.degrees()[al.index] > 0:
+            return None
+        return out
+
+    def _reduce_alg(self, c, d):
+        """Numerators of degree >= 4 in an algebraic generator reduced modulo its polynomial
+        (``L r**4 = -(P2 r**2 + P0)``; a non-constant ``L`` joins the denominator)."""
+        changed = False
+        for al in self.algs:
+            j = al.index
+            while any(p.degrees()[j] >= 4 for p in c.values()):
+                changed = True
+                out = {}
+                for m, p in c.items():
+                    if p.degrees()[j] >= 4:
+                        q, rem = divmod(p, al.r4)
+                        p = rem * al.L - q * al.low if not al.L.is_one() else rem - q * al.low
+                    elif not al.L.is_one():
+                        p = p * al.L
+                    if not p.is_zero():
+                        out[m] = p
+                c = out
+                if not al.L.is_one():
+                    d = d * al.L
+        return c, d, changed
+
+    def _uses_alg(self, p) -> bool:
+        degs = p.degrees()
+        return any(degs[al.index] > 0 for al in self.algs)
+
+    def _inv_plain(self, num, den) -> Elem:
+        """``den / num`` for base polynomials; an algebraic generator in ``num`` is removed by
+        multiplying with its conjugates (``r -> -r``, then ``r**2 -> -P2/L - r**2``)."""
+        if not self.algs or not self._uses_alg(num):
+            return self.make_reduced({0: den}, num)
+        x = Elem(self, {0: num}, self.pone)
+        mult = Elem(self, {0: den}, self.pone)
+        for al in self.algs:
+            p = x.num0()
+            if p.degrees()[al.index] <= 0:
+                continue
+            self.tick()
+            xm = Elem(self, {0: p.compose(*al.flip)}, self.pone)
+            y = x * xm  # even in r: (alpha + beta r**2) / y.d
+            if not y.c:
+                raise ZeroDivisionError("division by zero modulo a reducible defining polynomial")
+            beta, alpha = divmod(y.num0(), al.r2)
+            if beta.degrees()[al.index] > 0 or alpha.degrees()[al.index] > 0:  # pragma: no cover - defensive
+                raise Unsupported("could not rationalise a denominator with a nested root")
+            conj = alpha * al.L - beta * al.P2 - beta * al.L * al.r2
+            nrm = alpha * alpha * al.L - alpha * beta * al.P2 + beta * beta * al.P0
+            if nrm.is_zero():
+                raise ZeroDivisionError("division by zero modulo a reducible defining polynomial")
+            mult = mult * xm * Elem(self, {0: conj}, self.pone) * Elem(self, {0: y.d}, self.pone)
+            x = Elem(self, {0: nrm}, self.pone)
+        return mult * self.make_reduced({0: self.pone}, x.num0())
+
+    def _canon_sqrt(self, num, den):
+        """``sqrt(num/den) = factor * sqrt(k pn / pd)``: the canonical radicand's key and ``factor``."""
+        cn, cd = _content(num), _content(den)
+        s, k = _square_split(int(cn) * int(cd))
+        num = (num / self.ctx.constant(cn)) * k
+        den = den / self.ctx.constant(cd)
+        return (str(num), str(den)), flint.fmpq(s, int(cd))
 
     def _new_sqrt(self, num, den, sym, trig=None, radicand=None) -> SqrtGen:
         if len(self.sqrts) >= 24:
@@ -995,6 +1424,20 @@ class Field:
         if not R.is_plain():
             return self._nested_sqrt(R)
         num, den = R.c[0], R.d
+        outer = None
+        if self._alg_of and any(num.degrees()[j] > 0 for j in self._alg_of):
+            # sqrt(r**2 Q) = r sqrt(Q): an algebraic generator is a principal root, so r >= 0
+            tc = num.term_content().degrees()
+            gens = self.ctx.gens()
+            for al in self._alg_of.values():
+                k2 = tc[al.index] // 2
+                if k2:
+                    num = num / gens[al.index] ** (2 * k2)
+                    t = Elem(self, {0: gens[al.index] ** k2}, self.pone)
+                    outer = t if outer is None else outer * t
+            if outer is not None:
+                rest = self._sqrt_of(self.make_reduced({0: num}, den))
+                return outer * rest
         # canonical radicand: sqrt((cn pn)/(cd pd)) = (s/cd) sqrt(k pn / pd) with cn cd = s^2 k, so that
         # sqrt(Lambda/3) and sqrt(3 Lambda) share one generator
         cn, cd = _content(num), _content(den)
@@ -1002,6 +1445,10 @@ class Field:
         num = (num / self.ctx.constant(cn)) * k
         den = den / self.ctx.constant(cd)
         factor = flint.fmpq(s, int(cd))
+        if self._alg_inner:
+            inner = self._alg_inner.get((str(num), str(den)))
+            if inner is not None:  # the inner root of a nested one: (r**2 - A)/c
+                return self.const(factor) * inner
         if num.is_constant() and den.is_constant():
             # a rational constant: exact when it is a square
             v = flint.fmpq(int(num.leading_coefficient()), int(den.leading_coefficient()))
@@ -1127,6 +1574,8 @@ class Field:
         if e.is_Rational:
             return self.const(e)
         if e.is_Symbol:
+            if self._elim and e in self._elim:
+                return self._elim[e]
             return self._g(("coord", e) if e in self.coord_index else ("param", e))
         if e is sp.pi or e is sp.E:
             return self._g(("const", e))
@@ -1155,6 +1604,11 @@ class Field:
             if x.is_Integer:
                 return self._el(b) ** int(x)
             if x.is_Rational and x.q == 2:
+                g = self._gens.get(("alg", b))
+                if g is not None:
+                    return self.gen_elem(g) ** int(x.p)
+                if self._elim and b in self._alg_inner_sym:
+                    return self._alg_inner_sym[b] ** int(x.p)
                 return self._sqrt_of(self._el(b)) ** int(x.p)
             if x.is_Rational:
                 return self._g(("pow", b, sp.Rational(1, x.q))) ** int(x.p)
@@ -1236,6 +1690,21 @@ class Field:
             w = self._el(g.data["arg"])
             dw = w.diff(i)
             r = None if dw.is_zero() else dw / w
+        elif g.kind == "alg":
+            # implicit differentiation of F(r) = 0: dr = -(sum_k dF/dg_k dg_k) / (dF/dr)
+            al = self._alg_of[j]
+            P = al.poly
+            terms = []
+            for k, dk in enumerate(P.degrees()):
+                if k == j or not dk:
+                    continue
+                rk = self.dgen(k, i)
+                if rk is not None:
+                    terms.append(self._poly_el(P.derivative(k)) * rk)
+            if terms:
+                Fx = self.sum(terms)
+                if Fx.c:
+                    r = -(Fx / self._poly_el(P.derivative(j)))
         elif g.kind == "lambertw":
             # W exp(W) = z: dW = W dz / (z (1 + W))
             z = self._el(g.data["arg"])
@@ -1263,7 +1732,11 @@ class Field:
         if key in self._dlogsqrt:
             return self._dlogsqrt[key]
         s = self.sqrts[k]
-        if s.trig is not None:
+        if s.coord is not None:
+            # s is the eliminated variable itself: ds/s = dv/v = s/R along v, 0 along the others
+            v = self.base[s.coord]
+            r = Elem(self, {1 << s.bit: self.pone}, self.pone) / s.radicand if v.sym == self.coords[i] else None
+        elif s.trig is not None:
             # s = sin(w), c = cos(w): ds/s = c dw / s = -c dc / s^2 = -c dc / (1 - c^2)
             C = self.gen_elem(s.trig)
             dc = self.dgen(s.trig.index, i)
@@ -1294,7 +1767,7 @@ class Field:
                 acc = t if acc is None else acc + t
         out = self.zero
         if acc_poly is not None and not acc_poly.is_zero():
-            out = Elem(self, {0: acc_poly}, self.pone)
+            out = Elem(self, {0: acc_poly}, self.pone) if not self.algs else self.make({0: acc_poly}, self.pone)
         if acc is not None:
             out = out + acc
         return out
@@ -1337,7 +1810,7 @@ class Field:
 
     # -- conversions ---------------------------------------------------------
     def to_q(self, p):
-        return self.qctx.from_dict(p.to_dict())
+        return flint.fmpq_mpoly(p, self.qctx)
 
     def eval_arb(self, p, base):
         if p.is_constant():
@@ -1416,9 +1889,17 @@ class Field:
         return out
 
     def to_sympy(self, a: Elem, factor: bool = True, opaque: bool = False):
-        """The element as a sympy expression in the chart's own symbols (see :meth:`gen_sym`)."""
+        """The element as a sympy expression in the chart's own symbols (see :meth:`gen_sym`).
+
+        With an eliminated variable (see :meth:`_eliminate`) a value that is free of the nested root
+        (Kerr's Kretschmann scalar in Kerr-Schild coordinates) is shown as a rational function of
+        the chart's own symbols; otherwise the root appears as its explicit expression."""
         if not a.c:
             return sp.Integer(0)
+        if self._elim:
+            alt = self._root_free(a)
+            if alt is not None:
+                a = alt
         conv = self._factored if factor else self.poly_to_sympy
         num = sp.Integer(0)
         for m, p in a.c.items():
@@ -1512,6 +1993,18 @@ class Field:
                         ex[j] = val
                         pt._vals = None
                     val = flint.arb(val)
+                elif g.kind == "alg":
+                    # r = sqrt(A + c sqrt(B)) from its explicit expression (exact when both are squares)
+                    al = self._alg_of[j]
+                    for part in (al.A, al.c, al.B):
+                        ensure(part)
+                    vB = al.B.evaluate(pt)
+                    sB = _sqrt_value(vB)
+                    val = _sqrt_value(al.A.evaluate(pt) + al.c.evaluate(pt) * sB)
+                    if isinstance(val, flint.fmpq):
+                        ex[j] = val
+                        pt._vals = None
+                    val = flint.arb(val)
                 elif g.kind == "lambertw":
                     w = self._el(g.data["arg"])
                     ensure(w)
@@ -1543,6 +2036,10 @@ class Field:
                 if s.trig is not None:
                     ensure_base(s.trig.index)
                     return
+                if s.coord is not None:  # the eliminated coordinate or parameter: its own value
+                    sq[i] = ex[s.coord]
+                    asq[i] = ab[s.coord]
+                    return
                 ensure(s.radicand)
                 rv = s.radicand.evaluate(pt)
                 if isinstance(rv, flint.fmpq):
@@ -1566,6 +2063,21 @@ class Field:
                 ensure_sqrt(i)
         pt.fill = ensure_base
         return pt
+
+
+def _sqrt_value(v):
+    """Principal square root of an ``fmpq`` (exact when it is a square) or of an ``arb``."""
+    if isinstance(v, flint.fmpq):
+        if v < 0:
+            raise ValueError("negative radicand")
+        if v.p.isqrt() ** 2 == v.p and v.q.isqrt() ** 2 == v.q:
+            return flint.fmpq(v.p.isqrt(), v.q.isqrt())
+        v = flint.arb(v)
+    if v < 0:
+        raise ValueError("negative radicand")
+    if v.contains(0):
+        raise ValueError("radicand too close to zero")
+    return v.sqrt()
 
 
 def _content(p):

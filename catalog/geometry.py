@@ -12,9 +12,11 @@ Two exact representations ("paths"):
   (:mod:`gravicat._ratfun`): coordinates, parameters, values of arbitrary
   functions and their derivatives (``a``, ``a_t``, ``a_tt``...), ``cos`` of an
   angle with ``sin`` as a square-root generator (``sin**2 = 1 - cos**2``,
-  ``d/dtheta cos = -sin``), other square roots (nested ones as a tower, e.g.
-  Kerr-Schild's ``r``), ``exp``, ``log``, ``LambertW`` and symbolic powers,
-  each with its derivation rule. Fractions are kept reduced by gcd, so an
+  ``d/dtheta cos = -sin``), other square roots, nested roots
+  ``sqrt(A + c sqrt(B))`` such as Kerr-Schild's ``r`` as algebraic generators
+  (defining polynomial, implicit differentiation; other nestings as a tower),
+  ``exp``, ``log``, ``LambertW`` and symbolic powers, each with its derivation
+  rule. Fractions are kept reduced by gcd, so an
   identity is proved when its residual reduces to 0. A sum of several
   coordinate-dependent roots or transcendental functions in the metric
   (``1 + m1/sqrt(R1) + m2/sqrt(R2)``) is carried as an opaque function of the
@@ -443,7 +445,9 @@ class Geometry(_Curvature):
 
     The budget is CPU time of this process (``time.process_time``) on the
     flint path, so a loaded machine does not turn proofs into timeouts; the
-    sympy path runs in a child process under a wall-clock limit.
+    sympy path runs in a child process under a wall-clock limit. In
+    ``verify`` the budget covers the preparation the check needs (derivatives
+    of the metric for the sample points, curvature) as well as the proof.
     """
 
     def __init__(
@@ -635,12 +639,14 @@ class Geometry(_Curvature):
     # -- budget --------------------------------------------------------------
     @contextmanager
     def deadline(self, seconds: float | None):
-        """Cooperative time limit for flint computations (raises BudgetExceeded)."""
+        """Cooperative time limit for flint computations (raises BudgetExceeded). Nested limits
+        keep the earlier end: the preparation of a chart and the proof share one budget."""
         if self.field is None or seconds is None:
             yield
             return
         old = self.field.deadline
-        self.field.deadline = time.process_time() + seconds
+        end = time.process_time() + seconds
+        self.field.deadline = end if old is None else min(old, end)
         try:
             yield
         finally:
@@ -788,12 +794,23 @@ class Geometry(_Curvature):
         result, or to find a counterexample)."""
         budget = self.budget if budget is None else budget
         counts = [0, 0]  # agreeing points, of which inexact
-        failed = self._sampled_stage(fn, what, self._sample(QUICK_SAMPLES), counts)
-        if failed is not None:
-            return failed
-        nonzero, err = self._symbolic(fn, budget)
+        # one budget for the whole check: the symbolic preparation the sample points need (first and
+        # second derivatives of the metric) counts against it as much as the proof does
+        try:
+            with self.deadline(budget):
+                failed = self._sampled_stage(fn, what, self._sample(QUICK_SAMPLES), counts)
+                if failed is not None:
+                    return failed
+                nonzero, err = self._symbolic(fn, budget)
+        except BudgetExceeded:
+            nonzero, err = {}, "budget"
         if err or nonzero:
-            failed = self._sampled_stage(fn, what, self.sample_points()[QUICK_SAMPLES:], counts)
+            try:
+                # after a spent budget, only what is already prepared may be evaluated
+                with self.deadline(0.0 if err == "budget" else None):
+                    failed = self._sampled_stage(fn, what, self.sample_points()[QUICK_SAMPLES:], counts)
+            except BudgetExceeded:
+                failed = None
             if failed is not None:
                 return failed
         agreed, inexact = counts
@@ -882,8 +899,16 @@ class Geometry(_Curvature):
                 return {}, f"outside the exact field: {e}"
             except ZeroDivisionError as e:
                 return {}, f"division by zero ({e})"
-            return {k: sp.sstr(self.to_sympy(v)) for k, v in nonzero.items()}, None
+            return {k: self._show(v) for k, v in nonzero.items()}, None
         return _run_limited(lambda: {k: sp.sstr(v) for k, v in fn(self).items() if not self.is_zero(v)}, budget)
+
+    def _show(self, v, limit: int = 3000) -> str:
+        """A residual as text; a very large one is described instead of printed (factoring and
+        printing it could take longer than the proof)."""
+        size = sum(len(p) for p in v.c.values()) + len(v.d)
+        if size > limit:
+            return f"<a non-zero rational function with {size} terms>"
+        return sp.sstr(self.to_sympy(v))
 
     def prove_values(self, fn, budget=None):
         """Compute ``fn(self)`` (a dict of values) within the budget: (dict or None, error)."""

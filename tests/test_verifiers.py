@@ -353,3 +353,34 @@ def test_every_verifier_runs_on_a_fallback_chart(name):
     spec = chart((t, r, th, ph), sph(-f, 1 / f), (M,), domain=(r > 2 * M, th > 0, th < sp.pi), ranges=(M > 0,))
     for res in verifier(name).check(Geometry(spec, budget=1.0)):
         assert res.status in (Status.PASS, Status.SKIPPED, Status.INCONCLUSIVE), (res.check, res.detail)
+
+
+# ---------------------------------------------------------------------------
+# Kerr-Schild: the nested root r as an algebraic generator
+
+
+def kerr_schild(kz_scale=1):
+    """g = eta + f k k, f = 2 M r^3/(r^4 + a^2 z^2), k = (1, (r x + a y)/(r^2 + a^2), (r y - a x)/(r^2 + a^2), z/r),
+    r^4 - (x^2 + y^2 + z^2 - a^2) r^2 - a^2 z^2 = 0: R. P. Kerr, Phys. Rev. Lett. 11 (1963) 237; M. Visser, The Kerr
+    spacetime: a brief introduction (2007), eqs. 10-13 (recalled from memory). ``kz_scale`` != 1 is a copying slip."""
+    a = sp.Symbol("a", real=True)
+    rho2 = x**2 + y**2 + z**2 - a**2
+    R = sp.sqrt(rho2 / 2 + sp.sqrt(rho2**2 / 4 + a**2 * z**2))
+    k = [1, (R * x + a * y) / (R**2 + a**2), (R * y - a * x) / (R**2 + a**2), kz_scale * z / R]
+    f = 2 * M * R**3 / (R**4 + a**2 * z**2)
+    g = sp.diag(-1, 1, 1, 1) + f * sp.Matrix(4, 4, lambda i, j: k[i] * k[j])
+    return chart((t, x, y, z), g, (M, a), domain=(z > 0,), ranges=(M > 0, a > 0, a < M))
+
+
+def test_kerr_schild_vacuum_passes_and_a_copying_slip_fails_with_a_point():
+    ok = run("field-equations", kerr_schild())["field-equations"]
+    assert ok.status == Status.PASS and ok.method == Method.SYMBOLIC
+    bad = run("field-equations", kerr_schild(kz_scale=sp.Rational(1, 2)))["field-equations"]
+    assert bad.status == Status.FAIL and bad.counterexample["component"].startswith("R[")
+    assert set(bad.counterexample["point"]) >= {"x", "y", "z", "M", "a"}
+
+
+def test_a_small_budget_ends_the_check_inconclusive():
+    # the preparation (second derivatives of the metric) counts against the check's budget
+    res = run("field-equations", kerr_schild(kz_scale=sp.Rational(1, 2)), budget=1e-6)["field-equations"]
+    assert res.status == Status.INCONCLUSIVE and "did not finish" in res.detail

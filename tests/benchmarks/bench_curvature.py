@@ -12,6 +12,13 @@ Cases (the claims of the issue "Fast exact curvature"):
 * a deliberately broken Kerr metric (one flipped sign: g_rr = Delta/Sigma instead of Sigma/Delta),
   which must be reported as failed with a counterexample.
 
+Nested roots (issue "nested square roots on the fast path without a tower", ``--nested``): every
+built-in verifier on the bundled ``kerr:kerr-schild`` and ``kerr-newman:kerr-schild`` charts (what
+``gravicat check`` runs per chart, file already parsed), and on every bundled chart in turn (the
+whole catalogue), with the Kerr-Schild radius as an algebraic generator (the engine) against the
+same engine with nested roots as a tower of quadratic extensions (``Field.algebraic_roots = False``,
+the representation before), measured in the same run. Targets from the issue: 0.4 s and 1 s CPU.
+
 Fast path: ``Geometry(spec).verify(fn)``, the whole verification a verifier runs (field built,
 sampled stage at 3 random points of the domain, exact proof; the other 5 of the default 8 points
 are only evaluated when a proof does not succeed), from a prepared ChartSpec, in process (no
@@ -472,15 +479,92 @@ def print_case_table(rows, textbook_cap):
         print(f"  {row['case']}: " + "; ".join(parts))
 
 
+# ----------------------------------------------------------------------------- nested roots
+
+NESTED_TARGETS = {"kerr:kerr-schild": 0.4, "kerr-newman:kerr-schild": 1.0}  # CPU seconds, from the issue
+
+
+def checks_job(units, algebraic=True):
+    """Every built-in verifier on each (entry, chart) of ``units``: {unit: statuses} (charts built first,
+    outside the timing of the other units' checks but inside the child's CPU time)."""
+
+    def run():
+        from gravicat import _ratfun
+        from gravicat.registry import make_plugin_manager, verifiers
+        from gravicat.verify import bundled_documents, check_chart, make_resolver
+
+        _ratfun.Field.algebraic_roots = algebraic
+        docs = bundled_documents()
+        chosen = list(verifiers(make_plugin_manager()).values())
+        resolve = make_resolver(docs)
+        # everything imported and parsed before the clock that matters starts (a small chart warms up the
+        # verifiers' own lazy imports; numpy is the signature verifier's, imported on its first real use)
+        import numpy  # noqa: F401
+
+        check_chart(docs["minkowski"], "cartesian", chosen, resolve=resolve)
+        c0 = time.process_time()
+        out = {}
+        for unit in units:
+            entry, chart_name = unit.split(":")
+            report = check_chart(docs[entry], chart_name, chosen, resolve=resolve)
+            statuses = sorted({r.status.value for r in report.results})
+            out[unit] = {"statuses": statuses, "path": report.path}
+        out["_cpu"] = time.process_time() - c0
+        return out
+
+    return run
+
+
+def run_nested(repeat=3):
+    from gravicat.verify import bundled_documents
+
+    docs = bundled_documents()
+    every = [f"{e}:{c}" for e, d in sorted(docs.items()) for c in d.chart_names]
+    rows = []
+    for unit in NESTED_TARGETS:
+        fast = min((in_child(checks_job([unit])) for _ in range(max(1, repeat))), key=lambda o: o["value"]["_cpu"])
+        tower = in_child(checks_job([unit], algebraic=False), cpu_limit=600)
+        rows.append((unit, fast, tower))
+        print(f"  measured: {unit}", file=sys.stderr, flush=True)
+    fast = in_child(checks_job(every))
+    tower = in_child(checks_job(every, algebraic=False), cpu_limit=1200)
+    rows.append((f"whole catalogue ({len(every)} charts)", fast, tower))
+    return rows
+
+
+def print_nested_table(rows):
+    head = f"{'every check of':40s} {'seconds':>8s} {'target':>7s} {'tower':>8s} {'vs tower':>9s}"
+    head += "  statuses (engine / tower)"
+    print(head)
+    print("-" * len(head))
+    for unit, fast, tower in rows:
+        f, tw = fast["value"] or {}, tower["value"] or {}
+        fc, tc = f.get("_cpu"), tw.get("_cpu")
+        st = sorted({s for k, v in f.items() if k != "_cpu" for s in v["statuses"]}) if f else [fast["error"]]
+        st2 = sorted({s for k, v in tw.items() if k != "_cpu" for s in v["statuses"]}) if tw else [tower["error"]]
+        target = NESTED_TARGETS.get(unit)
+        print(
+            f"{unit:40s} {fc if fc is not None else float('nan'):8.3f} "
+            f"{('<=' + format(target, 'g')) if target else '-':>7s} {tc if tc is not None else float('nan'):8.3f} "
+            f"{fmt_ratio(tc, fc):>9s}  {','.join(st)} / {','.join(st2)}"
+        )
+    print("(CPU seconds of the checks in a forked child, chart building included, imports excluded; the tower column")
+    print(" is the same engine with Field.algebraic_roots = False, i.e. nested roots as quadratic extensions)")
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=3, help="runs of the fast path per case (the fastest is shown)")
     ap.add_argument("--textbook-cap", type=float, default=120.0, help="CPU seconds before the textbook run stops")
     ap.add_argument("--no-textbook", action="store_true", help="skip the textbook baseline (saves ~8 minutes)")
+    ap.add_argument("--nested", action="store_true", help="only the nested-root (Kerr-Schild) and catalogue rows")
     args = ap.parse_args(argv)
     print(f"machine: {machine()}")
-    rows = run_cases(args.repeat, args.textbook_cap, not args.no_textbook)
-    print_case_table(rows, args.textbook_cap)
+    if not args.nested:
+        rows = run_cases(args.repeat, args.textbook_cap, not args.no_textbook)
+        print_case_table(rows, args.textbook_cap)
+        print()
+    print_nested_table(run_nested(args.repeat))
     print(f"machine at the end: {machine()}")
 
 
