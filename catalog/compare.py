@@ -137,40 +137,16 @@ def _depends(expr, coords) -> bool:
 
 def _limited(fn, seconds: float):
     """Run ``fn()`` in a forked child with a hard time limit: (value, None) or (None, reason)."""
-    import multiprocessing
+    from gravicat._fork import run_forked
 
-    try:
-        ctx = multiprocessing.get_context("fork")
-    except ValueError:  # pragma: no cover - platforms without fork
-        try:
-            return fn(), None
-        except Exception as exc:  # noqa: BLE001 - reported, not raised: the comparison goes on
-            return None, f"{type(exc).__name__}: {exc}"
-    recv, send = ctx.Pipe(duplex=False)
-
-    def child():
-        try:
-            send.send((fn(), None))
-        except Exception as exc:  # noqa: BLE001
-            send.send((None, f"{type(exc).__name__}: {exc}"))
-        finally:
-            send.close()
-
-    proc = ctx.Process(target=child, daemon=True)
-    proc.start()
-    send.close()
-    try:
-        if recv.poll(seconds):
-            try:
-                return recv.recv()
-            except EOFError:
-                return None, "the child process ended without a result"
+    out = run_forked(lambda emit: fn(), wall_seconds=seconds)
+    if out.finished:
+        return out.value, None
+    if out.error is not None:
+        return None, out.error
+    if out.limit is not None:
         return None, f"no result within {seconds:g} s"
-    finally:
-        if proc.is_alive():
-            proc.kill()
-        proc.join(1)
-        recv.close()
+    return None, "the child process ended without a result"
 
 
 # --------------------------------------------------------------------------- one side

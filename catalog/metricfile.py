@@ -674,12 +674,18 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
 def _quadratic_form(form, dsyms, source: str, field: str):
     """The symmetric matrix of a quadratic form in the differentials ``dsyms``.
 
-    g_ij = (1/2) d^2 form / d(dx^i) d(dx^j): differentiation, never expansion, so a
-    large line element (Kerr-Schild) converts in milliseconds. The form must be
-    homogeneous of degree two: the Hessian may not contain a differential, and the
-    value and gradient at zero differentials must vanish.
+    First :func:`_split_quadratic` reads the coefficients off the expression tree in one pass
+    (no differentiation, no expansion of the coefficients). When the tree is not visibly a sum
+    of degree-two terms (a differential under a function or a root, a lower-degree term that
+    may cancel...), g_ij = (1/2) d^2 form / d(dx^i) d(dx^j) decides, with the same checks and
+    messages: the Hessian may not contain a differential, and the value and gradient at zero
+    differentials must vanish.
     """
     import sympy
+
+    split = _split_quadratic(form, dsyms)
+    if split is not None:
+        return split
 
     n = len(dsyms)
     zero = dict.fromkeys(dsyms, 0)
@@ -699,4 +705,91 @@ def _quadratic_form(form, dsyms, source: str, field: str):
         if term != 0 and sympy.cancel(term) != 0:
             raise InputError(source, field, "not a quadratic form: it has terms without two differentials "
                                             f"({term})")
+    return g
+
+
+def _split_quadratic(form, dsyms):
+    """The metric of ``form`` read off its tree, or None when the tree does not show a quadratic form.
+
+    One bottom-up pass over the (shared) expression tree: each node becomes
+    ``{monomial: [term, ...]}`` with a monomial a sorted tuple of differential indices;
+    a subtree without differentials stays the very same sympy object, so the coefficients
+    are the expressions of the file, not an expansion of them. Gives up (None) on anything
+    but sums, products and squares around the differentials, on a degree above two, on a tree
+    too deep to walk, and when a term of degree below two appears (it may still cancel): the
+    Hessian path then decides and words the error.
+    """
+    import sympy
+
+    index = {d: k for k, d in enumerate(dsyms)}
+    memo: dict[Any, Any] = {}
+    giveup = object()
+
+    def product(parts):
+        out: dict[tuple[int, ...], list] = {(): [()]}
+        for part in parts:
+            nxt: dict[tuple[int, ...], list] = {}
+            for k1, terms1 in out.items():
+                for k2, terms2 in part.items():
+                    key = tuple(sorted(k1 + k2))
+                    if len(key) > 2:
+                        return None
+                    bucket = nxt.setdefault(key, [])
+                    for t1 in terms1:
+                        for t2 in terms2:
+                            bucket.append(t1 + t2)
+            out = nxt
+        return out
+
+    def walk(e):
+        hit = memo.get(e)
+        if hit is not None:
+            return hit
+        if e in index:
+            res: Any = {(index[e],): [()]}
+        elif not e.args:
+            res = {(): [(e,)]}
+        else:
+            parts = []
+            res = None
+            for a in e.args:
+                p = walk(a)
+                if p is giveup:
+                    res = giveup
+                    break
+                parts.append(p)
+            if res is None:
+                if all(len(p) == 1 and () in p for p in parts):
+                    res = {(): [(e,)]}  # no differential below: keep the node itself
+                elif e.is_Add:
+                    res = {}
+                    for p in parts:
+                        for k, terms in p.items():
+                            res.setdefault(k, []).extend(terms)
+                elif e.is_Mul:
+                    res = product(parts)
+                elif e.is_Pow and e.exp == 2:  # a square (any other power of a differential: give up)
+                    res = product([parts[0], parts[0]])
+                else:
+                    res = None
+                if res is None:
+                    res = giveup
+        memo[e] = res
+        return res
+
+    try:
+        parts = walk(form)
+    except RecursionError:
+        return None
+    if parts is giveup or any(len(k) != 2 for k in parts):
+        return None
+    n = len(dsyms)
+    g = sympy.zeros(n, n)
+    half = sympy.Rational(1, 2)
+    for (i, j), terms in parts.items():
+        coeff = sympy.Add(*(sympy.Mul(*t) for t in terms))
+        if i == j:
+            g[i, i] = coeff
+        else:
+            g[i, j] = g[j, i] = coeff * half
     return g

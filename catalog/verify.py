@@ -6,8 +6,9 @@ crashes, times each verifier and stamps its name and version on every result.
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
 from gravicat.checks import CheckResult, Method, Status, worst
@@ -86,40 +87,261 @@ def check_chart(doc: MetricDocument, chart: str, verifiers: Iterable[Any], *,
                 resolve: Callable[[str], Any] | None = None, budget: float = DEFAULT_BUDGET,
                 seed: int = 0) -> ChartReport:
     """Build ``chart`` of ``doc`` once and run every verifier on the shared prepared geometry."""
-    from gravicat.geometry import Geometry
     from gravicat.metricfile import build_chart
 
     start = time.perf_counter()
     spec = build_chart(doc, chart, resolve)
-    geometry = Geometry(spec, budget=budget, seed=seed)
-    report = ChartReport(chart=chart, path=geometry.path)
-    for verifier in verifiers:
-        report.results.extend(run_verifier(verifier, geometry))
+    report = ChartReport(chart=chart)
+    _run_spec(spec, list(verifiers), budget, seed, _collect_into(report))
     report.seconds = time.perf_counter() - start
     return report
 
 
+def _collect_into(report: ChartReport) -> Callable[[tuple], None]:
+    def collect(item: tuple) -> None:
+        if item[0] == "path":
+            report.path = item[1]
+        else:
+            report.results.extend(item[2])
+
+    return collect
+
+
+def _run_spec(spec, verifiers: list[Any], budget: float, seed: int, emit: Callable[[tuple], None]) -> None:
+    """Prepare a built chart and run the verifiers, reporting as it goes: ``("path", PATH)`` once
+    the chart is prepared, then ``("results", K, [CheckResult, ...])`` after the K-th verifier."""
+    from gravicat.geometry import Geometry
+
+    geometry = Geometry(spec, budget=budget, seed=seed)
+    emit(("path", geometry.path))
+    for k, verifier in enumerate(verifiers):
+        emit(("results", k, run_verifier(verifier, geometry)))
+
+
+# CPU seconds a chart's child gets beyond its proofs (building, preparing, sampling): see chart_cap()
+CAP_BASE = 10.0
+
+
+def chart_cap(doc: MetricDocument, chart: str, n_verifiers: int, budget: float) -> float:
+    """The hard CPU-time cap of one chart's child process, in seconds.
+
+    ``CAP_BASE + budget * checks``, where ``checks`` counts one proof per verifier plus one per
+    declared limit of the chart, flat-when substitution, transform, observer and published
+    invariant (each of which may take a symbolic proof of up to ``budget`` CPU seconds).
+    """
+    data = doc.data
+    c = data["charts"][chart]
+    declared = (sum(1 for lim in data["limits"].values() if lim["chart"] == chart) + len(data["flat-when"])
+                + len(c["transforms"]) + len(c["observers"]) + len(c["invariants"]))
+    return CAP_BASE + budget * (n_verifiers + declared)
+
+
 def check_document(doc: MetricDocument, verifiers: list[Any], *, charts: Iterable[str] | None = None,
-                   resolve: Callable[[str], Any] | None = None, budget: float = DEFAULT_BUDGET) -> list[ChartReport]:
+                   resolve: Callable[[str], Any] | None = None, budget: float = DEFAULT_BUDGET,
+                   jobs: int | None = None) -> list[ChartReport]:
+    """Check the charts of ``doc`` (default: all), one :class:`ChartReport` per chart in order.
+
+    ``jobs=None``: one chart after the other in this process. ``jobs=N``: when there is more
+    than one chart, each chart runs in its own forked child, at most N at a time, under the hard
+    CPU-time cap :func:`chart_cap`; the reports are the same as in-process ones, except that the
+    checks of a chart that reached its cap before reporting are ``inconclusive`` (the detail
+    says so). A chart that cannot be built raises the same error as in-process (the first such
+    chart in chart order). Without ``fork`` the charts run in-process.
+    """
     names = list(charts) if charts else doc.chart_names
-    return [check_chart(doc, c, verifiers, resolve=resolve, budget=budget) for c in names]
+    if jobs is None or len(names) < 2:
+        return [check_chart(doc, c, verifiers, resolve=resolve, budget=budget) for c in names]
+    import gravicat.geometry  # noqa: F401 - sympy and flint, imported once here for every child
+    from gravicat import _fork
+    from gravicat.metricfile import build_chart
+
+    verifiers = list(verifiers)
+    # Built here, one after the other (cheap): a chart that cannot be built raises here exactly as
+    # in-process, and every child starts from the same warm sympy state instead of paying it again.
+    specs, built = [], []
+    for chart in names:
+        start = time.perf_counter()
+        specs.append(build_chart(doc, chart, resolve))
+        built.append(time.perf_counter() - start)
+    caps = [chart_cap(doc, c, len(verifiers), budget) for c in names]
+
+    def task(k: int):
+        def run(emit):
+            start = time.perf_counter()
+            _run_spec(specs[k], verifiers, budget, 0, lambda item: emit(_portable(item)))
+            return time.perf_counter() - start
+
+        return run
+
+    # the largest charts start first, so that a long one does not end up last on a core
+    order = sorted(range(len(names)), key=lambda k: -len(str(doc.data["charts"][names[k]])))
+    started = _fork.run_many([task(k) for k in order], jobs=jobs, cpu_seconds=[caps[k] for k in order])
+    outcomes = [started[order.index(k)] for k in range(len(names))]
+    reports = []
+    for k, (chart, cap, out) in enumerate(zip(names, caps, outcomes, strict=True)):
+        if out.error is not None:
+            out.reraise()
+        report = ChartReport(chart=chart)
+        collect = _collect_into(report)
+        reported = set()
+        for item in out.items:
+            collect(item)
+            if item[0] == "results":
+                reported.add(item[1])
+        report.seconds = built[k] + (out.value if out.finished else out.seconds)
+        if not out.finished:
+            report.results.extend(_unreported(verifiers, reported, cap, out))
+        reports.append(report)
+    return reports
 
 
-def bundled_documents() -> dict[str, MetricDocument]:
-    from gravicat.store import iter_bundled_documents
+def _portable(item: tuple) -> tuple:
+    """``item`` as it can travel through a pipe: results whose ``data`` does not pickle get it as text."""
+    if item[0] != "results":
+        return item
+    import pickle
 
-    return {d.id: d for d in iter_bundled_documents()}
+    out = []
+    for r in item[2]:
+        try:
+            pickle.dumps(r)
+        except Exception:  # noqa: BLE001 - a plugin's data that cannot travel is shown as text
+            r = CheckResult(r.check, r.status, r.method, r.detail, r.counterexample, r.seconds, r.verifier,
+                            r.version, {str(k): str(v) for k, v in r.data.items()})
+        out.append(r)
+    return (item[0], item[1], out)
+
+
+def _unreported(verifiers: list[Any], reported: set[int], cap: float, out) -> list[CheckResult]:
+    """Results for the verifiers a chart's child did not report (it reached its cap, or died)."""
+    if out.limit is not None:
+        status = Status.INCONCLUSIVE
+        what = "CPU-time" if out.limit == "cpu" else "elapsed-time"
+        detail = (f"not finished: the chart's time cap was reached ({what} cap of {cap:g} s for this chart, "
+                  "from --budget and its number of checks)")
+    else:
+        status = Status.ERROR
+        detail = f"the chart's process ended without reporting this check (exit code {out.exitcode})"
+    return [CheckResult(check=v.name, status=status, method=Method.NONE, detail=detail,
+                        verifier=v.name, version=v.version)
+            for k, v in enumerate(verifiers) if k not in reported]
+
+
+class BundledDocuments(Mapping[str, MetricDocument]):
+    """The bundled reference catalogue (entry id -> validated document), read on demand.
+
+    ``docs.get("kerr")`` decodes and validates ``catalog/data/spacetimes/kerr.toml`` only (a
+    bundled file is named after its id); iterating, ``len()`` or a lookup of an id that is not
+    a file name read every file, in file-name order, as :func:`gravicat.store.iter_bundled_documents`
+    does (a later file with the same id wins, as in a dict built from that iterator). ``own``
+    documents (the subject of a check) take precedence over bundled ones with the same id.
+    The SQL store is never imported, so resolving a ``reduces-to`` target of a file costs one
+    small file, not the whole catalogue.
+    """
+
+    def __init__(self, own: Iterable[MetricDocument] = ()):
+        self._own = {d.id: d for d in own}
+        self._bundled: dict[str, MetricDocument] = {}
+        self._complete = False
+
+    def with_document(self, doc: MetricDocument) -> BundledDocuments:
+        """A view with ``doc`` added (it hides a bundled entry of the same id); loaded files are shared."""
+        out = BundledDocuments([*self._own.values(), doc])
+        out._bundled, out._complete = self._bundled, self._complete
+        return out
+
+    @staticmethod
+    def _folder():
+        from importlib.resources import files
+
+        return files("gravicat.data.spacetimes")
+
+    @staticmethod
+    def _read(path) -> MetricDocument:
+        from gravicat.metricfile import decode_toml, validate
+
+        raw = decode_toml(Path(str(path)))
+        return validate(raw.data, f"bundled:{path.name}")
+
+    def _read_all(self) -> None:
+        if self._complete:
+            return
+        found: dict[str, MetricDocument] = {}
+        for path in sorted((Path(str(p)) for p in self._folder().iterdir() if p.name.endswith(".toml")),
+                           key=lambda p: p.name):
+            known = self._bundled.get(path.stem)
+            doc = known if known is not None and known.source == f"bundled:{path.name}" else self._read(path)
+            found.pop(doc.id, None)  # a later file with the same id wins and takes the later place
+            found[doc.id] = doc
+        self._bundled.clear()
+        self._bundled.update(found)
+        self._complete = True
+
+    def _lookup(self, key: str) -> MetricDocument | None:
+        if key in self._own:
+            return self._own[key]
+        if key in self._bundled or self._complete:
+            return self._bundled.get(key)
+        from gravicat.metricfile import SLUG
+
+        if isinstance(key, str) and SLUG.match(key):
+            path = self._folder() / f"{key}.toml"
+            if path.is_file():
+                doc = self._read(path)
+                if doc.id == key:
+                    self._bundled[key] = doc
+                    return doc
+        self._read_all()  # not named after its id (or no such file): read them all, as before
+        return self._bundled.get(key)
+
+    def get(self, key, default=None):
+        found = self._lookup(key)
+        return default if found is None else found
+
+    def __getitem__(self, key: str) -> MetricDocument:
+        found = self._lookup(key)
+        if found is None:
+            raise KeyError(key)
+        return found
+
+    def __contains__(self, key) -> bool:
+        return self._lookup(key) is not None
+
+    def __iter__(self) -> Iterator[str]:
+        self._read_all()
+        yield from self._bundled
+        yield from (k for k in self._own if k not in self._bundled)
+
+    def __len__(self) -> int:
+        self._read_all()
+        return len(self._bundled.keys() | self._own.keys())
+
+
+def bundled_documents() -> BundledDocuments:
+    """The bundled reference catalogue as a lazily read mapping (see :class:`BundledDocuments`)."""
+    return BundledDocuments()
 
 
 # --------------------------------------------------------------------------- process pool units
 
 
+_UNIT_VERIFIERS: dict[tuple[str, ...], dict[str, Any]] = {}
+
+
 def run_unit(unit: dict[str, Any]) -> dict[str, Any]:
     """Verify one (document, chart) in a worker process; everything in and out is plain data."""
+    import multiprocessing
+
     from gravicat.registry import make_plugin_manager, verifiers
 
-    pm = make_plugin_manager(blocked=unit["blocked"])
-    chosen = [v for name, v in verifiers(pm).items() if name in unit["verifiers"]]
+    key = tuple(unit["blocked"])
+    if multiprocessing.parent_process() is None:  # in the command's own process: nothing kept
+        loaded = verifiers(make_plugin_manager(blocked=unit["blocked"]))
+    else:  # a pool worker: the plugins once per worker, not once per unit
+        if key not in _UNIT_VERIFIERS:
+            _UNIT_VERIFIERS[key] = verifiers(make_plugin_manager(blocked=unit["blocked"]))
+        loaded = _UNIT_VERIFIERS[key]
+    chosen = [v for name, v in loaded.items() if name in unit["verifiers"]]
     docs = {k: MetricDocument(v, f"catalogue:{k}") for k, v in unit["docs"].items()}
     doc = MetricDocument(unit["document"], unit["source"])
     report = check_chart(doc, unit["chart"], chosen, resolve=make_resolver({**docs, doc.id: doc}),

@@ -835,3 +835,62 @@ def test_definitions_are_substituted_into_the_matrix(tmp_path):
     assert_same_matrix(spec.metric, sympy.diag(-f, 1 / f, R**2, R**2 * sympy.sin(TH) ** 2))
     assert spec.coords == (T, R, TH, PH)
     assert set(spec.params) == {M, Q}
+
+
+# --------------------------------------------------------------------------- the line element read off its tree
+
+BUNDLED = Path(__file__).resolve().parents[1] / "catalog" / "data" / "spacetimes"
+
+
+def _line_elements():
+    for path in sorted(BUNDLED.glob("*.toml")):
+        doc = load_file(path)
+        for chart, c in doc.data["charts"].items():
+            if "line-element" in c:
+                yield pytest.param(doc, chart, id=f"{doc.id}:{chart}")
+
+
+@pytest.mark.parametrize(("doc", "chart"), list(_line_elements()))
+def test_every_bundled_line_element_gives_sympys_hessian(doc, chart, monkeypatch):
+    """g_ab = (1/2) d^2(ds^2)/d(dx^a)d(dx^b), with sympy.hessian as the reference (general-purpose library)."""
+    import gravicat.metricfile as mf
+
+    seen = []
+    real = mf._quadratic_form
+
+    def spy(form, dsyms, *rest):
+        seen.append((form, dsyms))
+        return real(form, dsyms, *rest)
+
+    monkeypatch.setattr(mf, "_quadratic_form", spy)
+    spec = build_chart(doc, chart)
+    [(form, dsyms)] = seen  # the line element as built from the file, before it became a matrix
+    assert mf._split_quadratic(form, dsyms) is not None  # read off the tree, not differentiated
+    reference = sympy.hessian(form, dsyms) / 2
+    n = len(dsyms)
+    assert spec.metric.T == spec.metric
+    assert all(sympy.cancel(spec.metric[i, j] - reference[i, j]) == 0 for i in range(n) for j in range(i, n))
+
+
+def test_tree_reading_agrees_with_differentiation_on_a_nested_square(tmp_path):
+    # a Kerr-Schild-like form -dt^2 + dx^2 + dy^2 + dz^2 + (M/r)(l_a dx^a)^2 with l built from a definition
+    data = {"id": "fen-square", "title": "Square", "field-equations": "none",
+            "parameters": {"M": {"assume": ["positive"]}},
+            "charts": {"main": {"coordinates": ["t", "x", "y", "z"],
+                                "define": {"r": "sqrt(x**2 + y**2 + z**2)"},
+                                "line-element": "-dt**2 + dx**2 + dy**2 + dz**2 "
+                                                "+ M*(dt + x*dx/r + y*dy/r + z*dz/r)**2/r"}}}
+    spec = build_chart(load_file(write(tmp_path, data)))
+    x, y, z = (sympy.Symbol(n, real=True) for n in "xyz")
+    rr = sympy.sqrt(x**2 + y**2 + z**2)
+    ell = [1, x / rr, y / rr, z / rr]
+    expected = sympy.diag(-1, 1, 1, 1) + sympy.Matrix(4, 4, lambda i, j: M * ell[i] * ell[j] / rr)
+    assert_same_matrix(spec.metric, expected)
+    assert spec.metric[0, 1] == M * x / rr**2  # half of the cross term's 2 M x / r^2, read off exactly
+
+
+def test_lower_degree_terms_that_cancel_are_still_accepted(tmp_path):
+    # x*(x + 1) - x**2 - x is zero only after cancellation: the differentiating path decides, as before
+    spec = _single_chart(tmp_path, "-dt**2 + dx**2 + dy**2 + dz**2 + (x*(x + 1) - x**2 - x)*dt",
+                         coords=("t", "x", "y", "z"))
+    assert spec.metric == sympy.diag(-1, 1, 1, 1)

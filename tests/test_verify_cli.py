@@ -7,6 +7,8 @@ import json
 import sympy
 from conftest import DATA
 
+from gravicat.metricfile import load_file
+
 GOOD = DATA / "corvin-exterior.toml"
 
 
@@ -107,3 +109,112 @@ def test_invariants_of_schwarzschild(cli):
     k = sympy.sympify(chart["kretschmann"], locals={"M": M, "r": rr})
     assert sympy.simplify(k - 48 * M**2 / rr**6) == 0
     assert sympy.sympify(chart["ricci_scalar"]) == 0
+
+
+# --------------------------------------------------------------------------- reduces-to, resolved lazily
+
+LIMITED = """
+id = "halcyon-drift"
+title = "Halcyon drift exterior"
+field-equations = "vacuum"
+
+[parameters.M]
+assume = ["positive"]
+
+[charts.static]
+coordinates = ["t", "r", "theta", "phi"]
+domain = ["r > 2*M", "0 < theta < pi"]
+define = { f = "1 - 2*M/r" }
+line-element = "-f*dt**2 + dr**2/f + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+
+[charts.plain]
+coordinates = ["t", "x", "y", "z"]
+line-element = "-dt**2 + dx**2 + dy**2 + dz**2"
+
+[limits.same-as-schwarzschild]
+chart = "static"
+reduces-to = "TARGET"
+"""
+
+
+def test_bundled_documents_reads_only_the_named_file():
+    from gravicat import store
+    from gravicat.verify import bundled_documents
+
+    docs = bundled_documents()
+    kerr = docs.get("kerr")
+    assert kerr is not None and kerr.source == "bundled:kerr.toml" and "kerr-schild" in kerr.chart_names
+    assert set(docs._bundled) == {"kerr"} and not docs._complete
+    assert docs.get("no-such-entry") is None and "no-such-entry" not in docs
+    assert docs._complete  # an id that is not a file name: every file was read, as before
+    # the mapping is the one the store's reader gives (same ids, order, sources and content)
+    old = {d.id: d for d in store.iter_bundled_documents()}
+    assert list(docs) == list(old) and len(docs) == len(old)
+    assert all(docs[k].data == old[k].data and docs[k].source == old[k].source for k in old)
+
+
+def test_own_document_hides_the_bundled_one(tmp_path):
+    from gravicat.verify import bundled_documents
+
+    path = tmp_path / "schwarzschild.toml"
+    text = LIMITED.replace('id = "halcyon-drift"', 'id = "schwarzschild"')
+    path.write_text(text.replace("TARGET", "minkowski:spherical"))
+    own = load_file(path)
+    docs = bundled_documents().with_document(own)
+    assert docs["schwarzschild"] is own and docs.get("minkowski").source == "bundled:minkowski.toml"
+    assert list(docs).count("schwarzschild") == 1
+
+
+def _check_limit(cli, tmp_path, target):
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", target))
+    r = cli("check", str(path), "--json", "--only", "limits")
+    assert r.exit_code == 0, r.output
+    charts = json.loads(r.stdout)["charts"]
+    return {c["check"]: c for c in charts[0]["checks"]}, path
+
+
+def test_reduces_to_a_bundled_entry_is_proved(cli, tmp_path):
+    # the exterior is the bundled Schwarzschild chart itself (same M, same coordinates): proved exactly
+    checks, _ = _check_limit(cli, tmp_path, "schwarzschild:schwarzschild")
+    lim = checks["limits:same-as-schwarzschild"]
+    assert lim["status"] == "pass" and lim["method"] == "symbolic", lim
+    assert lim["detail"].startswith("reduces to schwarzschild:schwarzschild")
+
+
+def test_unknown_reduces_to_target_is_reported_as_before(cli, tmp_path):
+    from gravicat import store
+    from gravicat.registry import make_plugin_manager, verifiers
+    from gravicat.verify import check_document, make_resolver
+
+    checks, path = _check_limit(cli, tmp_path, "no-such-entry:static")
+    lim = checks["limits:same-as-schwarzschild"]
+    assert lim["status"] == "skipped" and lim["detail"] == "target chart 'no-such-entry:static' not found"
+    # the same result as resolving against every bundled document read through the store
+    doc = load_file(path)
+    chosen = [verifiers(make_plugin_manager())["limits"]]
+    old = {d.id: d for d in store.iter_bundled_documents()}
+    before = check_document(doc, chosen, resolve=make_resolver({**old, doc.id: doc}))
+    assert [r.to_json()["checks"] for r in before][0][0]["detail"] == lim["detail"]
+
+
+def test_check_of_a_file_does_not_import_the_sql_store(tmp_path):
+    import os
+    import subprocess
+    import sys
+
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", "schwarzschild:schwarzschild"))
+    code = (
+        "import json, sys\n"
+        "from typer.testing import CliRunner\n"
+        "from gravicat.cli import app\n"
+        f"r = CliRunner().invoke(app, ['check', {str(path)!r}, '--only', 'limits', '--json'])\n"
+        "print(json.dumps({'code': r.exit_code, 'loaded': sorted(m for m in ('gravicat.store', 'sqlalchemy',"
+        " 'gravicat.models') if m in sys.modules)}))\n"
+    )
+    env = {k: v for k, v in os.environ.items() if not k.startswith("GRAVICAT_")}
+    env["GRAVICAT_CONFIG"] = str(tmp_path / "no-config.toml")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
+    assert out.returncode == 0, out.stderr
+    assert json.loads(out.stdout.strip().splitlines()[-1]) == {"code": 0, "loaded": []}
