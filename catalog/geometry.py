@@ -42,9 +42,6 @@ symbolically and every component must reduce to zero within the time budget
 
 from __future__ import annotations
 
-import math
-import multiprocessing
-import signal
 import time
 from collections.abc import Callable
 from contextlib import contextmanager
@@ -930,52 +927,19 @@ def _short(s: str, limit: int = 200) -> str:
 def _run_limited(fn, seconds):
     """Run ``fn`` in a forked child limited to ``seconds`` of CPU time: (result, error).
 
-    The child gets RLIMIT_CPU (so a loaded machine does not turn a proof into a timeout, as on the
-    flint path); the parent also gives up after a generous wall-clock limit."""
-    try:
-        ctx = multiprocessing.get_context("fork")
-    except ValueError:  # pragma: no cover - platforms without fork
-        try:
-            return fn(), None
-        except Exception as e:  # noqa: BLE001
-            return {}, f"{type(e).__name__}: {e}"
-    recv, send = ctx.Pipe(duplex=False)
+    The child gets a CPU-time cap (so a loaded machine does not turn a proof into a timeout, as on
+    the flint path); the parent also gives up after a generous wall-clock limit. The error is
+    ``"budget"`` when a limit stopped the child."""
+    from gravicat._fork import run_forked
 
-    def child():
-        try:
-            import resource
-
-            cpu = max(1, math.ceil(seconds))
-            _soft, hard = resource.getrlimit(resource.RLIMIT_CPU)
-            if hard == resource.RLIM_INFINITY or hard > cpu:
-                resource.setrlimit(resource.RLIMIT_CPU, (cpu, hard))
-        except (ImportError, ValueError, OSError):  # pragma: no cover - no resource limits here
-            pass
-        try:
-            send.send((fn(), None))
-        except Exception as e:  # noqa: BLE001
-            send.send(({}, f"{type(e).__name__}: {e}"))
-        finally:
-            send.close()
-
-    proc = ctx.Process(target=child, daemon=True)
-    proc.start()
-    send.close()
-    try:
-        if recv.poll(max(4 * seconds, seconds + 30)):
-            try:
-                out = recv.recv()
-            except EOFError:
-                proc.join(1)
-                out = ({}, "budget" if proc.exitcode == -signal.SIGXCPU else "the proof process ended without a result")
-        else:
-            out = ({}, "budget")
-    finally:
-        if proc.is_alive():
-            proc.kill()
-        proc.join(1)
-        recv.close()
-    return out
+    out = run_forked(lambda emit: fn(), cpu_seconds=max(1.0, seconds), wall_seconds=max(4 * seconds, seconds + 30))
+    if out.finished:
+        return out.value, None
+    if out.limit is not None:
+        return {}, "budget"
+    if out.error is not None:
+        return {}, out.error
+    return {}, "the proof process ended without a result"
 
 
 # ---------------------------------------------------------------------------

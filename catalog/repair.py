@@ -1900,42 +1900,16 @@ def _run_limited(verifiers: list, geometry, seconds: float) -> list[CheckResult]
     """
     if not verifiers:
         return []
+    from gravicat._fork import run_forked
     from gravicat.verify import result_from_json, run_verifier
 
-    try:
-        ctx = multiprocessing.get_context("fork")
-    except ValueError:  # pragma: no cover - platforms without fork
-        return [r for v in verifiers for r in run_verifier(v, geometry)]
-    recv, send = ctx.Pipe(duplex=False)
+    def task(emit):
+        for v in verifiers:
+            emit([r.to_json() | {"data": r.data} for r in run_verifier(v, geometry)])
 
-    def child():
-        try:
-            for v in verifiers:
-                send.send([r.to_json() | {"data": r.data} for r in run_verifier(v, geometry)])
-        finally:
-            send.close()
-
-    proc = ctx.Process(target=child, daemon=False)  # not daemonic: the verifiers may fork children of their own
-    proc.start()
-    send.close()
-    out: list[CheckResult] = []
-    done = 0
-    deadline = time.monotonic() + seconds
-    try:
-        while done < len(verifiers):
-            left = deadline - time.monotonic()
-            if left <= 0 or not recv.poll(left):
-                break
-            try:
-                out.extend(result_from_json(d) for d in recv.recv())
-            except EOFError:
-                break
-            done += 1
-    finally:
-        if proc.is_alive():
-            proc.kill()
-        proc.join(1)
-        recv.close()
+    outcome = run_forked(task, wall_seconds=seconds)
+    out: list[CheckResult] = [result_from_json(d) for batch in outcome.items for d in batch]
+    done = len(outcome.items)
     for v in verifiers[done:]:
         out.append(CheckResult(check=v.name, status=Status.INCONCLUSIVE, method=Method.NONE,
                                detail=f"not finished within {seconds:g} s (the time limit repair gives each "
@@ -1946,35 +1920,16 @@ def _run_limited(verifiers: list, geometry, seconds: float) -> list[CheckResult]
 
 def _call_limited(fn: Callable[[], Any], seconds: float):
     """``fn()`` in a forked child killed after ``seconds``: (True, value) or (False, reason)."""
-    try:
-        ctx = multiprocessing.get_context("fork")
-    except ValueError:  # pragma: no cover - platforms without fork
-        return True, fn()
-    recv, send = ctx.Pipe(duplex=False)
+    from gravicat._fork import run_forked
 
-    def child():
-        try:
-            send.send((True, fn()))
-        except Exception as exc:  # noqa: BLE001 - reported to the parent as a failed proof
-            send.send((False, f"{type(exc).__name__}: {exc}"))
-        finally:
-            send.close()
-
-    proc = ctx.Process(target=child, daemon=False)  # not daemonic: the verifiers may fork children of their own
-    proc.start()
-    send.close()
-    try:
-        if recv.poll(seconds):
-            try:
-                return recv.recv()
-            except EOFError:
-                return False, "the proof process ended without a result"
+    out = run_forked(lambda emit: fn(), wall_seconds=seconds)
+    if out.finished:
+        return True, out.value
+    if out.error is not None:
+        return False, out.error
+    if out.limit is not None:
         return False, f"not finished within {seconds:g} s"
-    finally:
-        if proc.is_alive():
-            proc.kill()
-        proc.join(1)
-        recv.close()
+    return False, "the proof process ended without a result"
 
 
 def _proof_task(i: int) -> dict:
