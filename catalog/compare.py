@@ -894,22 +894,9 @@ def _obstructions(a: _Side, b: _Side, budget: float, out: list[Evidence]) -> lis
         out.append(Evidence("signature", "consistent", f"{_sig_text(a.signature)} in both"))
     both_functions = []
     for name in INVARIANTS:
-        ia, ib = a.inv.get(name), b.inv.get(name)
-        if ia is None or ib is None:
+        if a.inv.get(name) is None or b.inv.get(name) is None:
             continue
-        ka, kb = _constant(ia, a.coords), _constant(ib, b.coords)
-        if ka and kb:
-            ev, ob = _compare_constants(name, a, b, aux)
-            if ob is not None:
-                found.append(ob)
-            elif ev is not None:
-                out.append(ev)
-        elif ka != kb:
-            const_side, func_side = (a, b) if ka else (b, a)
-            ob = _const_vs_function(name, const_side, func_side, aux)
-            if ob is not None:
-                found.append(ob)
-        else:
+        if _compare_unless_both_vary(name, a, b, aux, out, found):
             both_functions.append(name)
     if found:
         return found
@@ -928,23 +915,32 @@ def _obstructions(a: _Side, b: _Side, budget: float, out: list[Evidence]) -> lis
         return found
     gname = f"|grad {pivot}|^2"
     a.inv[gname], b.inv[gname] = na, nb
-    ka, kb = _constant(na, a.coords), _constant(nb, b.coords)
-    if ka and kb:
-        ev, ob = _compare_constants(gname, a, b, aux)
-        if ob is not None:
-            found.append(ob)
-        elif ev is not None:
-            out.append(ev)
-    elif ka != kb:
-        const_side, func_side = (a, b) if ka else (b, a)
-        ob = _const_vs_function(gname, const_side, func_side, aux)
-        if ob is not None:
-            found.append(ob)
-    else:
+    if _compare_unless_both_vary(gname, a, b, aux, out, found):
         ob = _pair_tests(pivot, gname, a, b, aux, out)
         if ob is not None:
             found.append(ob)
     return found
+
+
+def _compare_unless_both_vary(name: str, a, b, aux, out: list, found: list) -> bool:
+    """Compare invariant ``name`` of both sides when it is constant on at least one side (evidence
+    into ``out``, an obstruction into ``found``); True when it varies on both sides (then it
+    needs the pairwise tests)."""
+    ka, kb = _constant(a.inv[name], a.coords), _constant(b.inv[name], b.coords)
+    if ka and kb:
+        ev, ob = _compare_constants(name, a, b, aux)
+        if ob is not None:
+            found.append(ob)
+        elif ev is not None:
+            out.append(ev)
+        return False
+    if ka != kb:
+        const_side, func_side = (a, b) if ka else (b, a)
+        ob = _const_vs_function(name, const_side, func_side, aux)
+        if ob is not None:
+            found.append(ob)
+        return False
+    return True
 
 
 def _constant_curvature(side: _Side, budget: float):
