@@ -69,3 +69,17 @@ class ChartSpec:
     flat_when: tuple[dict[sympy.Symbol, sympy.Expr], ...] = ()
     tags: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+
+    def claim_expressions(self) -> list:
+        """The expressions the field-equation claim is built from: the metric components (row by
+        row), then the cosmological constant, the potential, the fluid and the null dust."""
+        out = list(self.metric)
+        if self.cosmological_constant is not None:
+            out.append(self.cosmological_constant)
+        if self.potential is not None:
+            out.extend(self.potential)
+        if self.fluid is not None:
+            out += [self.fluid.density, self.fluid.pressure, *self.fluid.velocity]
+        if self.null_dust is not None:
+            out += [self.null_dust.density, *self.null_dust.vector]
+        return out

@@ -390,15 +390,7 @@ def _fmt_number(v) -> str:
 
 def _spec_exprs(spec):
     """Every expression of the chart that may be converted to a field element."""
-    out = list(spec.metric)
-    if spec.cosmological_constant is not None:
-        out.append(spec.cosmological_constant)
-    if spec.potential is not None:
-        out.extend(spec.potential)
-    if spec.fluid is not None:
-        out += [spec.fluid.density, spec.fluid.pressure, *spec.fluid.velocity]
-    if spec.null_dust is not None:
-        out += [spec.null_dust.density, *spec.null_dust.vector]
+    out = spec.claim_expressions()
     for u in spec.observers.values():
         out.extend(u)
     for inv in spec.invariants.values():

@@ -67,19 +67,6 @@ def _function_subs(exprs, rng):
     return out
 
 
-def _claim_exprs(spec):
-    out = list(spec.metric)
-    if spec.cosmological_constant is not None:
-        out.append(spec.cosmological_constant)
-    if spec.potential is not None:
-        out.extend(spec.potential)
-    if spec.fluid is not None:
-        out += [spec.fluid.density, spec.fluid.pressure, *spec.fluid.velocity]
-    if spec.null_dust is not None:
-        out += [spec.null_dust.density, *spec.null_dust.vector]
-    return out
-
-
 def same_chart(original, repaired, chart: str, seed: int = 7) -> bool:
     """Both documents give the same metric and matter fields on ``chart`` (sympy, 40 digits, 3 points)."""
     import sympy as sp
@@ -88,7 +75,7 @@ def same_chart(original, repaired, chart: str, seed: int = 7) -> bool:
     from gravicat.metricfile import build_chart
 
     a, b = build_chart(original, chart), build_chart(repaired, chart)
-    ea, eb = _claim_exprs(a), _claim_exprs(b)
+    ea, eb = a.claim_expressions(), b.claim_expressions()
     if len(ea) != len(eb):
         return False
     diffs = [sp.sympify(x) - sp.sympify(y) for x, y in zip(ea, eb, strict=True)]
