@@ -288,34 +288,9 @@ def _compatible(sym_b, sym_a, ranges_b) -> bool:
                for rel in ranges_b)
 
 
-def _inertia(rows) -> tuple[tuple[int, int, int], bool]:
-    """(negative, zero, positive) eigenvalue counts of a symmetric matrix; exact for rationals.
-
-    Exact: Descartes' rule of signs on the characteristic polynomial, whose roots are all
-    real, counts positive and negative eigenvalues exactly. Otherwise floating eigenvalues.
-    """
-    import flint
-
-    n = len(rows)
-    if all(isinstance(v, flint.fmpq) for row in rows for v in row):
-        p = flint.fmpq_mat(n, n, [v for row in rows for v in row]).charpoly()
-        coeffs = [p[i] for i in range(n + 1)]
-
-        def changes(cs):
-            signs = [c > 0 for c in cs if c != 0]
-            return sum(1 for i in range(1, len(signs)) if signs[i] != signs[i - 1])
-
-        zero = next(i for i, c in enumerate(coeffs) if c != 0)
-        return (changes([c if i % 2 == 0 else -c for i, c in enumerate(coeffs)]), zero, changes(coeffs)), True
-    import numpy as np
-
-    vals = np.linalg.eigvalsh(np.array([[float(v.mid()) if hasattr(v, "mid") else float(v) for v in row]
-                                        for row in rows]))
-    tol = 1e-12 * max(1.0, float(np.max(np.abs(vals))))
-    return (int(np.sum(vals < -tol)), int(np.sum(np.abs(vals) <= tol)), int(np.sum(vals > tol))), False
-
-
 def _signature(side: _Side, budget: float) -> None:
+    from gravicat.geometry import inertia
+
     seen = set()
     exact = True
     try:
@@ -327,7 +302,7 @@ def _signature(side: _Side, budget: float) -> None:
         return
     for pd in points:
         try:
-            sig, ex = _inertia(pd.g)
+            sig, ex = inertia(pd.g)
         except (ValueError, TypeError, ZeroDivisionError):
             continue
         seen.add(sig)

@@ -912,6 +912,52 @@ class Geometry(_Curvature):
         return (res, err) if err else (res, None)
 
 
+def _descartes(coeffs) -> tuple[int, int]:
+    """(negative, positive) root counts of a polynomial with only real roots (ascending coefficients)."""
+
+    def changes(cs):
+        signs = [c > 0 for c in cs if c != 0]
+        return sum(1 for i in range(1, len(signs)) if signs[i] != signs[i - 1])
+
+    return changes([c if i % 2 == 0 else -c for i, c in enumerate(coeffs)]), changes(coeffs)
+
+
+def inertia(rows) -> tuple[tuple[int, int, int], bool]:
+    """((negative, zero, positive) eigenvalue counts of a symmetric matrix, certain).
+
+    The characteristic polynomial of a real symmetric matrix has only real roots, so Descartes'
+    rule of signs on its coefficients counts the positive and negative eigenvalues exactly. With
+    rational entries (``fmpq``) that is exact arithmetic; with interval entries (``arb`` balls of
+    a sample point) it is certain when every coefficient's ball excludes zero. Otherwise (a ball
+    that contains zero, e.g. a nearly singular matrix) the floating-point eigenvalues of the
+    midpoints are counted, and ``certain`` is False.
+    """
+    import flint
+
+    n = len(rows)
+    flat = [v for row in rows for v in row]
+    if all(isinstance(v, flint.fmpq) for v in flat):
+        p = flint.fmpq_mat(n, n, flat).charpoly()
+        coeffs = [p[i] for i in range(n + 1)]  # ascending
+        zero = next(i for i, c in enumerate(coeffs) if c != 0)
+        neg, pos = _descartes(coeffs)
+        return (neg, zero, pos), True
+    try:
+        p = flint.arb_mat(n, n, [flint.arb(v) for v in flat]).charpoly()
+        coeffs = [p[i] for i in range(n + 1)]
+        if all(c > 0 or c < 0 for c in coeffs):  # every sign certain: no zero eigenvalue
+            neg, pos = _descartes([1 if c > 0 else -1 for c in coeffs])
+            return (neg, 0, pos), True
+    except (TypeError, ValueError):  # an entry that is no rational or ball
+        pass
+    import numpy as np
+
+    vals = np.linalg.eigvalsh(np.array([[float(v.mid()) if hasattr(v, "mid") else float(v) for v in row]
+                                        for row in rows]))
+    tol = 1e-12 * max(1.0, float(np.max(np.abs(vals))))
+    return (int(np.sum(vals < -tol)), int(np.sum(np.abs(vals) <= tol)), int(np.sum(vals > tol))), False
+
+
 def _short(s: str, limit: int = 200) -> str:
     return s if len(s) <= limit else s[: limit - 3] + "..."
 

@@ -851,3 +851,28 @@ def test_two_nested_roots_are_two_reduced_algebraic_generators():
     assert exact_equal(geo, geo.ddval(e, 0, 1), sp.diff(e, x, y))
     d = geo.val(r1 + r2 + 1)
     assert geo.is_zero(d * (geo.one / d) - geo.one)
+
+
+def test_inertia_exact_interval_and_float_against_sympy():
+    import flint
+
+    from gravicat.geometry import inertia
+
+    # a rational symmetric matrix with off-diagonal terms; reference: sympy's eigenvalues (reference library)
+    rows = [[-3, 1, 0, 2], [1, 2, 0, 0], [0, 0, 5, 1], [2, 0, 1, 1]]
+    ev = [complex(v).real for v in sp.Matrix(rows).eigenvals(multiple=True)]
+    expected = (sum(v < 0 for v in ev), 0, sum(v > 0 for v in ev))
+    assert inertia([[flint.fmpq(v) for v in row] for row in rows]) == (expected, True)
+    # Schwarzschild at r = 3 sqrt(2) M, theta = pi/4 (M = 1), entries as 320-bit balls: Lorentzian
+    # (-,+,+,+) outside r = 2M (K. Schwarzschild 1916; S. M. Carroll, Spacetime and Geometry, 2004,
+    # chapter 5, the Schwarzschild metric; recalled from memory)
+    with flint.ctx.workprec(320):
+        r = 3 * flint.arb(2).sqrt()
+        f = 1 - 2 / r
+        s2 = flint.arb(1) / 2
+        g = [[-f, 0, 0, 0], [0, 1 / f, 0, 0], [0, 0, r**2, 0], [0, 0, 0, r**2 * s2]]
+        assert inertia(g) == ((1, 0, 3), True)
+        # a singular matrix of balls: the constant coefficient's ball contains 0, so the signs are not
+        # certain and the floating-point eigenvalues (0 and 2 sqrt 2) are counted instead
+        q = flint.arb(2).sqrt()
+        assert inertia([[q, q], [q, q]]) == ((0, 1, 1), False)
