@@ -12,12 +12,9 @@ from pathlib import Path
 
 import pytest
 import sympy as sp
-import typer
 from typer.testing import CliRunner
 
-from gravicat.cli import entries as entries_cli
-from gravicat.cli import repair as repair_cli
-from gravicat.cli import root
+from gravicat.cli import app
 from gravicat.metricfile import build_chart, load_file
 from gravicat.registry import make_plugin_manager, verifiers
 from gravicat.repair import KINDS, corruptions, edited_document, find_repairs
@@ -57,12 +54,7 @@ def same_metric(spec, expected) -> bool:
 
 @pytest.fixture
 def rcli(db_url):
-    """The command line with the repair group (until the lead wires it into gravicat.cli.app)."""
-    app = typer.Typer(no_args_is_help=True, rich_markup_mode=None, pretty_exceptions_enable=False,
-                      add_completion=False)
-    app.callback()(root)
-    app.add_typer(entries_cli.app)
-    app.add_typer(repair_cli.app)
+    """The command line (the whole app: repair with add, verify, show and history)."""
     runner = CliRunner()
 
     def run(*args: str, db: str | None = None):
@@ -274,24 +266,47 @@ def test_cli_reports_the_repair_and_writes_nothing(rcli):
     assert len(chart["suggestions"]) == 1
 
 
-def test_write_edits_the_file_in_place_and_stores_a_revision(rcli, tmp_path):
+def catalogue_state(rcli, entry: str) -> tuple:
+    """Everything the catalogue says about ``entry``: its revisions (hash, status, check counts) and the head."""
+    hist = json.loads(rcli("history", entry, "--json").stdout)
+    shown = json.loads(rcli("show", entry, "--json").stdout)
+    return hist, shown
+
+
+def test_write_edits_the_file_only_and_leaves_the_catalogue_alone(rcli, tmp_path):
+    """A file whose id names a catalogue entry: --write changes the file, never the entry (storing is 'add')."""
     src = (EXAMPLES / "corvin9-typo.toml").read_text()
     path = tmp_path / "typo.toml"
     path.write_text(src)
     assert rcli("init", "--empty").exit_code == 0
     r = rcli("add", str(path))
     assert r.exit_code == 0 and "revision 1" in r.stdout
+    r = rcli("verify", "corvin9-typo")
+    assert r.exit_code == 1, r.output  # the stored results: the slip fails field-equations
+    hist, shown = catalogue_state(rcli, "corvin9-typo")
+    assert len(hist["revisions"]) == 1 and hist["revisions"][0]["status"] == "fail"
     r = rcli("repair", str(path), "--write")
     assert r.exit_code == 0, r.output
-    assert "wrote" in r.stdout and "revision 2" in r.stdout
+    assert "wrote" in r.stdout and "revision 2" not in r.stdout
+    assert "the catalogue was not changed (to store the repaired file: gravicat add" in r.stdout
     new = path.read_text()
     assert "dr**2/(1 - 2*M/r)" in new and "# the slip: g_rr should be 1/(1 - 2*M/r)" in new  # comments kept
+    assert catalogue_state(rcli, "corvin9-typo") == (hist, shown)  # revisions, results and head unchanged
     repaired = load_file(path)
-    r = rcli("show", "corvin9-typo", "--json")
-    shown = json.loads(r.stdout)
-    assert shown["revision"] == repaired.hash
+    assert shown["revision"] != repaired.hash
     r = rcli("repair", str(path))
     assert r.exit_code == 0 and "nothing to repair" in r.stdout
+    r = rcli("add", str(path))  # storing the repaired file is add's job
+    assert r.exit_code == 0 and "revision 2" in r.stdout
+    assert json.loads(rcli("show", "corvin9-typo", "--json").stdout)["revision"] == repaired.hash
+
+
+def test_write_of_a_file_does_not_open_the_catalogue(rcli, tmp_path):
+    typo = tmp_path / "typo.toml"
+    typo.write_text((EXAMPLES / "corvin9-typo.toml").read_text())
+    r = rcli("repair", str(typo), "--write", db="nosuchdb://x")  # the database is not used at all
+    assert r.exit_code == 0, r.output
+    assert "dr**2/(1 - 2*M/r)" in typo.read_text()
 
 
 def test_write_on_a_catalogue_entry_and_json_beside_a_json_file(rcli, tmp_path):
@@ -339,11 +354,8 @@ def test_bad_input_is_handled_like_check(rcli, tmp_path):
     assert r.exit_code == 2
     r = rcli("repair", str(EXAMPLES / "corvin9-typo.toml"), "--pick", "1")
     assert r.exit_code == 2 and "--pick: only meaningful with --write" in r.stderr
-    typo = tmp_path / "typo.toml"
-    typo.write_text((EXAMPLES / "corvin9-typo.toml").read_text())
-    r = rcli("repair", str(typo), "--write", db="nosuchdb://x")
+    r = rcli("repair", "corvin9-typo", "--write", db="nosuchdb://x")  # an entry id needs the catalogue
     assert r.exit_code == 2 and r.stderr == "Error: --db nosuchdb://x: unknown database kind 'nosuchdb'\n"
-    assert typo.read_text() == (EXAMPLES / "corvin9-typo.toml").read_text()  # nothing written
     unknown = tmp_path / "unknown.toml"
     unknown.write_text((EXAMPLES / "corvin9-typo.toml").read_text().replace("dr**2/(1 + 2*M/r)", "dr**2/(1 + 2*K/r)"))
     r = rcli("repair", str(unknown))

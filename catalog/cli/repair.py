@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from contextlib import ExitStack
 from pathlib import Path
 from typing import Annotated
 
@@ -72,26 +71,13 @@ def _print_text(report, write: bool) -> None:
             typer.echo("Nothing was written (give --write to apply a suggestion).")
 
 
-def _catalogue_absent(app_ctx) -> bool:
-    """The database is a SQLite file that does not exist (opening it would create an empty one)."""
-    from sqlalchemy.engine import make_url
-    from sqlalchemy.exc import ArgumentError
-
-    try:
-        url = make_url(app_ctx.settings.database)
-    except ArgumentError:
-        return False  # a broken URL is reported when it is opened
-    database = url.database or ""
-    if url.get_backend_name() != "sqlite" or database in ("", ":memory:") or database.startswith("file:"):
-        return False
-    return not Path(database).expanduser().exists()
-
-
 def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> list[str]:
-    """Apply the chosen suggestion: the file (in place or JSON beside it) and a new catalogue revision."""
-    from gravicat import __version__, store
-    from gravicat.config import load_settings
-    from gravicat.metricfile import MetricDocument
+    """Apply the chosen suggestion.
+
+    A file is written (in place, or the canonical JSON beside it) and nothing else: the catalogue is
+    never touched, even when the file's id names one of its entries (storing is ``gravicat add``).
+    A catalogue entry id gets a new revision of that entry, in one transaction.
+    """
     from gravicat.repair import write_suggestion
 
     suggestions = report.suggestions
@@ -103,33 +89,22 @@ def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> li
                                          "nothing was written")
     chosen = suggestions[(pick or 1) - 1]
     message = "repair: " + "; ".join(f"{e.field}: {e.detail}" for e in chosen.edits)
-    author = load_settings().author
-    lines, notes = [], []
-    with ExitStack() as stack:
-        session = None
-        if is_file and _catalogue_absent(app_ctx):
-            notes.append("not stored in the catalogue: there is no catalogue database yet")
+    if is_file:
+        written = write_suggestion(Path(subject), chosen)
+        if written.mode == "toml-in-place":
+            first = f"wrote {written.path} (the repaired expression replaced in place)"
         else:
-            session = stack.enter_context(app_ctx.transaction())  # a broken --db stops here: nothing written
-        stored = None
-        in_catalogue = session is not None and store.head(session, report.metric) is not None
-        if is_file:
-            written = write_suggestion(Path(subject), chosen)
-            if written.mode == "toml-in-place":
-                lines.append(f"wrote {written.path} (the repaired expression replaced in place)")
-            else:
-                lines.append(f"wrote {written.path}: {written.note}")
-            doc = MetricDocument(chosen.document.data, str(written.path))
-        else:
-            doc = MetricDocument(chosen.document.data, f"repair of catalogue:{report.metric}")
-        if in_catalogue:
-            stored = store.add_document(session, doc, author=author, message=message, tool_version=__version__)
-        elif session is not None:
-            notes.append(f"not stored in the catalogue: it has no entry '{report.metric}' (use 'gravicat add')")
-    if stored is not None:
-        lines.append(f"{stored.slug}: {stored.action} (revision {stored.number}, {stored.hash[:12]}); "
-                     f"message: {message}")
-    return lines + notes
+            first = f"wrote {written.path}: {written.note}"
+        return [first, f"the catalogue was not changed (to store the repaired file: gravicat add {written.path})"]
+    from gravicat import __version__, store
+    from gravicat.config import load_settings
+    from gravicat.metricfile import MetricDocument
+
+    doc = MetricDocument(chosen.document.data, f"repair of catalogue:{report.metric}")
+    with app_ctx.transaction() as session:
+        stored = store.add_document(session, doc, author=load_settings().author, message=message,
+                                    tool_version=__version__)
+    return [f"{stored.slug}: {stored.action} (revision {stored.number}, {stored.hash[:12]}); message: {message}"]
 
 
 @app.command("repair")
@@ -146,8 +121,9 @@ def repair(
                                           "symbolic proof gets at most this too (and at most 20 s).")] = 60.0,
     jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
     write: Annotated[bool, typer.Option("--write", help="Apply a suggestion: edit the file (or write the "
-                                        "canonical JSON beside it) and store a new revision when the entry is "
-                                        "in the catalogue.")] = False,
+                                        "canonical JSON beside it; the catalogue is not changed, store it with "
+                                        "'gravicat add'), or store a new revision of a catalogue entry given "
+                                        "by id.")] = False,
     pick: Annotated[int | None, typer.Option("--pick", min=1, help="With --write: the rank of the suggestion "
                                              "to apply (needed when there are several).", show_default=False)] = None,
     as_json: JsonOpt = False,
@@ -174,8 +150,6 @@ def repair(
             raise InputError(str(subject), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
     if pick is not None and not write:
         raise InputError("--pick", None, "only meaningful with --write")
-    if write and is_file and not _catalogue_absent(app_ctx):
-        app_ctx.open()  # a broken --db stops here, before the search
     report = find_repairs(doc, verifiers(app_ctx.plugins), docs=bundled_documents(), charts=chart,
                           max_edits=max_edits, budget=budget, proof_budget=min(20.0, budget), jobs=jobs)
     do_write = write and report.status == "repairs-found"
