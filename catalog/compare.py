@@ -34,6 +34,8 @@ Parameters are identified by ``match`` (``"Q=e"``: B's Q equals A's e, or
 A's Q equals B's e when only A has a Q), then by equal names; the others stay
 free. A parameter-dependent proof of non-equivalence is used only when at most
 one side has free parameters, and then holds for generic values of them.
+A coordinate map (``--map``) may name the parameters of either chart by their own names; a
+parameter identified by ``match`` stands for what it was identified with.
 Every "identically zero" claim goes through :func:`gravicat.geometry.prove_zero`
 (exact sampled stage, then exact proof), so "proved" means proved.
 """
@@ -166,6 +168,7 @@ class _Side:
         self.signature: tuple[int, int, int] | None = None
         self.signature_exact = False
         self.signature_note = ""
+        self.identified: dict[str, Any] = {}  # this side's own parameter names -> their value after _unify
 
     @property
     def coords(self):
@@ -262,6 +265,7 @@ def _unify(a: _Side, b: _Side, match: Sequence[str]):
     ranges = tuple(dict.fromkeys(ranges_a + ranges_b))
     for side, sub in ((a, sub_a), (b, sub_b)):
         spec = side.spec0
+        side.identified = {str(p): sub.get(p, p) for p in spec.params}
         side.spec = replace(
             spec,
             metric=sp.ImmutableMatrix(spec.metric.xreplace(sub)) if sub else spec.metric,
@@ -529,7 +533,9 @@ def _user_map(a: _Side, b: _Side, items: Sequence[str], budget: float) -> tuple[
     lhs = [name for name, _ in pairs]
     if len(set(lhs)) != len(lhs):
         raise InputError("--map", None, "a coordinate is given twice")
-    params = {str(p): p for p in a.spec.params}
+    # the parameters of both charts under their own names (B's m with --match m=M stands for A's M),
+    # then the unified ones (a name kept apart is reached as NAME_B); A's name wins a clash
+    params = {**b.identified, **a.identified, **{str(p): p for p in a.spec.params}}
     names_a, names_b = [str(c) for c in a.coords], [str(c) for c in b.coords]
     first_error = None
     for src, dst, src_names, dst_names in ((a, b, names_a, names_b), (b, a, names_b, names_a)):

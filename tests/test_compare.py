@@ -105,6 +105,44 @@ def test_schwarzschild_and_isotropic_equivalent_with_the_known_radial_map(tmp_pa
     assert sp.simplify(kb - 48 * M**2 / (R * (1 + M / (2 * R)) ** 2) ** 6) == 0
 
 
+# The isotropic chart of a second paper that calls the mass m. The isotropic radius relation
+# r = R (1 + m/(2R))^2: C. W. Misner, K. S. Thorne and J. A. Wheeler, Gravitation (1973), chapter 31
+# (the eq. (31.22) and exercise 31.7 attributions are recalled from memory, not checked); S. Weinberg,
+# Gravitation and Cosmology (1972), section 8.2 (recalled from memory).
+ISOTROPIC_M = ISOTROPIC.replace("halcyon-isotropic", "halcyon-isotropic-m").replace(
+    "[parameters.M]", "[parameters.m]").replace('range = "M > 0"', 'range = "m > 0"').replace("M/", "m/")
+
+
+def test_map_may_use_the_second_charts_own_parameter_names(tmp_path):
+    a = write(tmp_path, "a.toml", SCHWARZSCHILD)
+    b = write(tmp_path, "b.toml", ISOTROPIC_M)
+    assert "M" not in ISOTROPIC_M.split("[charts.iso]")[1]
+    # B's m, identified with A's M by --match: the map is written in B's own symbols
+    out = verdict_of(a, b, "--match", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    assert out["verdict"] == "equivalent", out["summary"]
+    proof = out["evidence"][0]
+    assert proof["kind"] == "map" and proof["result"] == "proved"
+    assert S(proof["map"]["r"]).equals(sp.Symbol("R") * (1 + M / (2 * sp.Symbol("R"))) ** 2)
+    # the same in A's symbol, and a map that states the identification the wrong way round is refuted
+    assert verdict_of(a, b, "--match", "m=M", "--map", "r=R*(1 + M/(2*R))**2", "--no-search")["verdict"] \
+        == "equivalent"
+    wrong = verdict_of(a, b, "--match", "m=2*M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    assert wrong["verdict"] != "equivalent"
+    assert wrong["evidence"][0]["kind"] == "map" and wrong["evidence"][0]["result"] == "failed"
+    # B's coordinates written in terms of A's, with A's M and B's m both accepted
+    back = verdict_of(b, a, "--match", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    assert back["verdict"] == "equivalent" and back["map"]["direction"] == "B coordinates in terms of A coordinates"
+
+
+def test_map_without_match_keeps_the_parameters_apart(tmp_path):
+    # no identification: m stays B's own free parameter, so the map cannot be proved an isometry for all m, M
+    a = write(tmp_path, "a.toml", SCHWARZSCHILD)
+    b = write(tmp_path, "b.toml", ISOTROPIC_M)
+    out = verdict_of(a, b, "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    assert out["verdict"] == "undecided"
+    assert out["evidence"][0]["kind"] == "map" and out["evidence"][0]["result"] == "failed"
+
+
 def test_a_wrong_map_gives_a_counterexample_not_a_verdict(tmp_path):
     a = write(tmp_path, "a.toml", SCHWARZSCHILD)
     b = write(tmp_path, "b.toml", ISOTROPIC)

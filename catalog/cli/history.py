@@ -84,7 +84,9 @@ def compare(
     coordinate_map: Annotated[list[str] | None, typer.Option(
         "--map", metavar="COORD=EXPR", help="Coordinate map: coordinates of one chart as expressions in the "
                                             "other's, e.g. --map 'r=R*(1+M/(2*R))**2' (repeatable; coordinates "
-                                            "not given map to the same name).", show_default=False)] = None,
+                                            "not given map to the same name). Parameters of either chart may be "
+                                            "used by their own names; --match identifications are substituted.",
+        show_default=False)] = None,
     match: Annotated[list[str] | None, typer.Option(
         "--match", metavar="PARAM=EXPR", help="Parameter identification: B's PARAM equals EXPR in A's "
                                               "parameters, e.g. --match Q=e or --match a=0 (repeatable).",
