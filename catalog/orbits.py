@@ -228,7 +228,7 @@ class EquatorialChart:
     holds arbitrary functions. :meth:`bind` fixes the parameters.
     """
 
-    def __init__(self, spec, charts: Sequence[str] = ()):
+    def __init__(self, spec, charts: Sequence[str] = (), azimuth: str | None = None):
         import sympy as sp
 
         self.spec = spec
@@ -262,12 +262,22 @@ class EquatorialChart:
         if not cyclic:
             self._refuse("no coordinate besides the time is absent from the metric: no azimuthal Killing "
                          "direction, so the chart is not axisymmetric in these coordinates")
-        preferred = [c for c in cyclic if str(c) in ("phi", "varphi", "psi")]
-        if len(cyclic) > 1 and len(preferred) != 1:
-            self._refuse(f"several coordinates could be the azimuth ({', '.join(map(str, cyclic))}); "
-                         "name the azimuth 'phi'")
+        if azimuth is not None:
+            chosen = [c for c in cyclic if str(c) == azimuth]
+            if not chosen:
+                raise InputError("--azimuth", azimuth, f"not an azimuth of this chart: the candidates (coordinates "
+                                                       f"the metric does not depend on) are "
+                                                       f"{', '.join(map(str, cyclic))}")
+            az = chosen[0]
+        else:
+            preferred = [c for name in ("phi", "varphi") for c in cyclic if str(c) == name]
+            if len(cyclic) > 1 and not preferred:
+                self._refuse(f"several coordinates could be the azimuth ({', '.join(map(str, cyclic))}); "
+                             "choose one with --azimuth NAME")
+            az = preferred[0] if preferred else cyclic[0]
         self.time, self.radial, self.polar = time, radial[0], polar
-        self.azimuth = preferred[0] if len(cyclic) > 1 else cyclic[0]
+        self.azimuth = az
+        self.other_angles = tuple(c for c in cyclic if c != az)
         it, ir, ip = coords.index(self.time), coords.index(self.radial), coords.index(self.azimuth)
         self.index = {"time": it, "radial": ir, "azimuth": ip, "polar": coords.index(polar) if polar else None}
         self.n = len(coords)
@@ -277,6 +287,20 @@ class EquatorialChart:
         flat = g.subs(on_equator)  # d/dr commutes with setting theta = pi/2: substitute first, it is cheaper
         series = [sp.diff(flat[i, j], r, k) for i, j in ((it, it), (it, ip), (ip, ip)) for k in range(3)]
         self.components = series[0], series[3], series[6]  # A, B, C: g_tt, g_tphi, g_phiphi on the equator
+        # the Killing block: time, the azimuth, and every other Killing angle whose circle has non-zero size on
+        # the equator (a circle that shrinks to zero there, like psi at theta = pi/2 in Hopf-type charts of five
+        # dimensions, is an axis and decouples); a horizon is where this block becomes degenerate
+        extra = [coords.index(c) for c in self.other_angles
+                 if sp.simplify(flat[coords.index(c), coords.index(c)]) != 0]
+        block = [it, ip, *extra]
+        killing = sp.Matrix([[flat[i, j] for j in block] for i in block])
+        if sp.simplify(series[6]) == 0:
+            self._refuse(f"the {self.azimuth} circle has zero size on the equator {polar} = pi/2 (an axis there): "
+                         f"no circular orbits along it; choose another azimuth with --azimuth NAME")
+        self.horizon_function = (series[3] ** 2 - series[0] * series[6]) if not extra else -killing.det()
+        self.decoupled = tuple(c for c in self.other_angles if coords.index(c) not in extra)
+        self.coupled = tuple(c for c in self.other_angles if coords.index(c) in extra)
+        self._np_horizon = sp.lambdify(self.args_for(spec, r), self.horizon_function, modules="numpy")
         self.rotating = series[3] != 0
         self.args = (r, *spec.params)
         self._np_series = sp.lambdify(self.args, series, modules="numpy")
@@ -288,8 +312,27 @@ class EquatorialChart:
         self._np_reflection = (sp.lambdify(self.args, self.reflection, modules="numpy")
                                if any(e != 0 for e in self.reflection) else None)
 
+    @staticmethod
+    def args_for(spec, r):
+        return (r, *spec.params)
+
     def _refuse(self, problem: str):
         raise InputError(self.source, self.field, problem)
+
+    @property
+    def azimuth_note(self) -> str | None:
+        """What is computed when the chart has more than one Killing angle."""
+        if not self.other_angles:
+            return None
+        text = (f"{len(self.other_angles) + 1} Killing angles; circular orbits move along {self.azimuth} only, with "
+                f"zero velocity along {', '.join(map(str, self.other_angles))}")
+        if self.decoupled:
+            text += (f"; on the equator the {', '.join(map(str, self.decoupled))} circle has zero size (an axis), "
+                     "so it decouples")
+        if self.coupled:
+            text += (f"; horizons are where the Killing block of {self.time}, {self.azimuth}, "
+                     f"{', '.join(map(str, self.coupled))} is degenerate")
+        return text
 
     def _charts(self) -> str:
         return ", ".join(self.chart_names) or "see 'gravicat show'"
@@ -443,7 +486,8 @@ class Equatorial:
 
         if not self.chart.rotating:
             return 1
-        radii = self.scale * np.geomspace(10, 1e4, 7)
+        lo, hi = self.region
+        radii = self.scale * np.geomspace(10, 1e4, 7) if hi is None else lo + (hi - lo) * np.array([0.9, 0.7, 0.5])
         m = self.series_np(radii)
         with np.errstate(all="ignore"):
             omega = -m[3] / m[6]
@@ -596,8 +640,7 @@ class Equatorial:
 
     @cached_property
     def horizons(self) -> Roots:
-        A, B, C = self.chart.components
-        found = self._positive_roots(B**2 - A * C)
+        found = self._positive_roots(self.chart.horizon_function)
         keep = []
         for q in found.roots:
             c = self.series_np([q.radius])[6][0]
@@ -609,11 +652,106 @@ class Equatorial:
     def ergosurface(self) -> Roots:
         return self._positive_roots(self.chart.components[0])
 
+    def killing_norm_np(self, r):
+        """-det of the Killing block on the equator (B**2 - A*C for t and the azimuth): > 0 where some
+        combination of the Killing vectors is timelike, 0 on a horizon."""
+        import numpy as np
+
+        r = np.asarray(r, dtype=float)
+        with np.errstate(all="ignore"):
+            v = np.asarray(self.chart._np_horizon(r, *self._pf))
+        if np.iscomplexobj(v):
+            v = np.where(np.abs(v.imag) <= 1e-12 * (1 + np.abs(v.real)), v.real, np.nan)
+        return np.broadcast_to(v.astype(float), r.shape)
+
+    @cached_property
+    def region(self) -> tuple[float, float | None]:
+        """The stationary region the report describes: the outermost interval between horizons where a
+        combination of the Killing vectors is timelike (outside the black hole; with a positive cosmological
+        constant, inside the cosmological horizon). (lower horizon or 0, upper horizon or None)."""
+        import numpy as np
+
+        radii = [q.radius for q in self.horizons.roots]
+        edges = [0.0, *radii]
+        for i in range(len(edges) - 1, -1, -1):
+            lo = edges[i]
+            hi = radii[i] if i < len(radii) else None
+            if hi is None:
+                probe = np.array([lo * 1.5 + self.scale, lo * 3 + 10 * self.scale])
+            else:
+                probe = lo + (hi - lo) * np.array([0.25, 0.5, 0.75])
+            if np.any(self.killing_norm_np(probe) > 0):
+                return lo, hi
+        return (radii[-1] if radii else 0.0), None
+
+    @property
+    def cosmological_horizon(self) -> float | None:
+        """The horizon bounding the region from outside (a cosmological horizon), None when there is none."""
+        return self.region[1]
+
+    @cached_property
+    def asymptotically_flat(self) -> bool:
+        """No outer horizon and g_tt -> -1 far out (numerically, at 1e6 times the scale)."""
+        import numpy as np
+
+        if self.cosmological_horizon is not None or self.domain_bounds[1] is not None:
+            return False
+        far = self.scale * np.array([1e5, 1e6])
+        a = self.series_np(far)[0]
+        return bool(np.all(np.isfinite(a)) and np.all(np.abs(a + 1) < 1e-3))
+
+    @cached_property
+    def static_range(self) -> tuple[float | None, float | None]:
+        """(lower, upper) radii between which static observers exist (g_tt < 0) in the region; (None, None)
+        when they exist nowhere there. The upper value is None when unbounded."""
+        import numpy as np
+
+        lo, hi = self.inner_edge, self.outer_edge
+        cuts = [lo] + [q.radius for q in self.ergosurface.roots if lo < q.radius < hi] + [hi]
+        for a, b in zip(cuts[:-1], cuts[1:], strict=True):
+            mid = np.array([a + (b - a) * f for f in (0.3, 0.5, 0.7)]) if b < FAR * self.scale else \
+                np.array([a * 1.5 + self.scale, a * 3 + 10 * self.scale])
+            if np.all(self.series_np(mid)[0] < 0):
+                upper = b if (b < hi or self.cosmological_horizon is not None
+                              or self.domain_bounds[1] is not None) else None
+                return a, upper
+        return None, None
+
     @cached_property
     def static_limit(self) -> float | None:
-        """Static observers exist for r beyond this radius (the outermost root of g_tt), None if no root."""
+        """The inner edge of the static observers' range (a root of g_tt), None if g_tt has no root there."""
+        lower = self.static_range[0]
+        if lower is None:
+            return None
         roots = self.ergosurface.roots
-        return roots[-1].radius if roots else None
+        return lower if any(abs(q.radius - lower) <= 1e-12 * max(1.0, lower) for q in roots) else None
+
+    @cached_property
+    def static_radius(self) -> float | None:
+        """Where d g_tt/dr = 0 in the static range: a static observer there is in free fall (a circular
+        geodesic with Omega = 0); with a positive cosmological constant (3M/Lambda)**(1/3)."""
+        lo, hi = self.static_range
+        if lo is None:
+            return None
+        hi = hi if hi is not None else self.outer_edge
+        found = self._scan(lambda x: self.series_np(x)[1], lambda x: self.series_mp(x)[1], lo, hi)
+        inside = [q.radius for q in found if lo < q.radius < hi]
+        return inside[-1] if inside else None
+
+    @cached_property
+    def clock_reference(self) -> tuple[float, str]:
+        """(d tau/dt of the reference clock, its description): clock rates are divided by the first."""
+        import math as _m
+
+        if self.asymptotically_flat:
+            return 1.0, "a static clock far away"
+        rs = self.static_radius
+        if self.cosmological_horizon is not None and rs is not None:
+            rate = _m.sqrt(-float(self.series_mp(rs)[0]))
+            return rate, (f"the static observer at the static radius r = {rs:.10g}, who is in free fall there "
+                          "(there is no static clock at infinity)")
+        return 1.0, (f"the coordinate time {self.chart.time} (d tau/d{self.chart.time}; no static clock at infinity "
+                     "and no static observer in free fall)")
 
     @cached_property
     def domain_bounds(self) -> tuple[float | None, float | None]:
@@ -638,19 +776,21 @@ class Equatorial:
 
     @cached_property
     def inner_edge(self) -> float:
-        """Where the search for orbits starts: the outer horizon, or the chart's lower radial bound, or 0."""
-        edges = [0.0]
-        if self.horizons.roots:
-            edges.append(self.horizons.roots[-1].radius)
+        """Where the search for orbits starts: the black-hole horizon bounding the region, or the chart's lower
+        radial bound, or 0."""
+        edges = [self.region[0]]
         if self.domain_bounds[0] is not None:
             edges.append(self.domain_bounds[0])
         return max(edges)
 
     @cached_property
     def outer_edge(self) -> float:
+        """Where it ends: the cosmological horizon, the chart's upper radial bound, or far out."""
         far = self.inner_edge + FAR * self.scale
-        upper = self.domain_bounds[1]
-        return min(far, upper) if upper is not None else far
+        for upper in (self.region[1], self.domain_bounds[1]):
+            if upper is not None:
+                far = min(far, upper)
+        return far
 
     # ---- landmarks
 
@@ -658,33 +798,151 @@ class Equatorial:
         return (lambda x: self.orbit_np(x, direction)[key] - shift,
                 lambda x: self.orbit_mp(x, direction)[key] - shift)
 
+    def potential_np(self, r, L):
+        """The energy E at which a particle of angular momentum L turns at r on the equator (the effective
+        potential): g^tt E**2 - 2 g^tphi E L + g^phiphi L**2 = -1, future root, E = (-B L + sqrt(D (L**2 + C)))/C."""
+        import numpy as np
+
+        m = self.series_np(r)
+        A, B, C = m[0], m[3], m[6]
+        D = B * B - A * C
+        with np.errstate(all="ignore"):
+            return (-B * L + np.sqrt(D * (L * L + C))) / C
+
+    def barrier(self, radius: float, L: float) -> float:
+        """The highest value of the effective potential for angular momentum L between ``radius`` and the outer
+        edge: a particle with less energy cannot escape outward. 1 (the rest energy far away) in an
+        asymptotically flat region; infinite when the potential grows without limit (anti-de Sitter)."""
+        import numpy as np
+        from scipy.optimize import minimize_scalar
+
+        hi = self.outer_edge
+        if not hi > radius:
+            return math.nan
+        x = radius + np.geomspace(1e-7 * radius, hi - radius, 800)[:-1]
+        v = self.potential_np(x, L)
+        ok = np.isfinite(v)
+        if not ok.any():
+            return math.nan
+        k = int(np.nanargmax(np.where(ok, v, -np.inf)))
+        best = float(v[k])
+        if self.cosmological_horizon is None and self.domain_bounds[1] is None and not self.asymptotically_flat \
+                and ok[-1] and ok[-2] and v[-1] > v[-2]:
+            return math.inf  # still rising far out: the potential grows without limit (anti-de Sitter)
+        if 0 < k < len(x) - 1:
+            res = minimize_scalar(lambda y: -float(self.potential_np(np.array([y]), L)[0]),
+                                  bounds=(float(x[k - 1]), float(x[k + 1])), method="bounded",
+                                  options={"xatol": 1e-13 * float(x[k])})
+            if np.isfinite(res.fun):
+                best = max(best, -float(res.fun))
+        if self.asymptotically_flat:
+            best = max(best, 1.0)
+        return best
+
+    def _is_bound(self, radius: float, energy: float, L: float) -> bool:
+        if self.asymptotically_flat:
+            return energy < 1
+        b = self.barrier(radius, L)
+        return bool(energy < b) if not math.isnan(b) else False
+
+    def _bound_root(self, d: str, lo: float, hi: float) -> list[float]:
+        """Radii where E of the circular orbit equals the outer barrier of the potential at its L (becoming bound
+        outward), found on a grid and refined by Brent's method."""
+        import numpy as np
+        from scipy.optimize import brentq
+
+        if not hi > lo:
+            return []
+
+        def f(x):
+            o = self.orbit_np(np.array([x]), d)
+            e, L = float(o["energy"][0]), float(o["L"][0])
+            if not (math.isfinite(e) and math.isfinite(L)):
+                return math.nan
+            b = self.barrier(x, L)
+            return e - b if math.isfinite(b) else -1.0
+
+        xs = lo + np.geomspace(NEAR * self.scale, hi - lo, 160)
+        ys = np.array([f(float(x)) for x in xs])
+        out = []
+        for k in range(len(xs) - 1):
+            if np.isfinite(ys[k]) and np.isfinite(ys[k + 1]) and ys[k] > 0 > ys[k + 1]:
+                out.append(float(brentq(f, float(xs[k]), float(xs[k + 1]), xtol=1e-14 * float(xs[k]), rtol=1e-15)))
+        return out
+
     @cached_property
     def landmarks(self) -> dict[str, dict[str, float | None]]:
-        """Photon orbit, marginally bound orbit and ISCO for each direction (None when absent)."""
-        out: dict[str, dict[str, float | None]] = {"photon_orbits": {}, "marginally_bound": {}, "isco": {}}
+        """Photon orbit, marginally bound orbit, ISCO and (where stable orbits end outward, as with a positive
+        cosmological constant) the outermost stable circular orbit, for each direction (None when absent)."""
+        import mpmath
+        import numpy as np
+
+        out: dict[str, dict[str, float | None]] = {"photon_orbits": {}, "marginally_bound": {}, "isco": {},
+                                                   "osco": {}}
         lo, hi = self.inner_edge, self.outer_edge
+        degenerate = any(q.multiplicity > 1 and abs(q.radius - lo) <= 1e-12 * max(1.0, lo)
+                         for q in self.horizons.roots)
         for d in DIRECTIONS:
             photon = [q for q in self._scan(*self._fns(d, "norm"), lo, hi) if q.rising is False]
-            if lo > 0 and any(q.radius <= lo * (1 + EDGE) for q in photon):
-                # the degenerate limit (e.g. extremal Kerr in Boyer-Lindquist): the orbit sits on the horizon
-                self.notes.append(f"{d}: the photon orbit merges with the inner edge r = {lo:.10g}")
-                photon = [q for q in photon if q.radius > lo * (1 + EDGE)]
+            merged = lo > 0 and any(q.radius <= lo * (1 + EDGE) for q in photon)
+            photon = [q for q in photon if q.radius > lo * (1 + EDGE)]
             ph = photon[-1].radius if photon else None
+            at_edge = False
+            if ph is None and lo > 0 and degenerate:
+                # the degenerate limit (extremal Kerr in Boyer-Lindquist r): circular orbits exist down to the
+                # degenerate horizon and become null there, so the photon orbit sits on it
+                with mpmath.workdps(DPS):
+                    near = [self.orbit_mp(mpmath.mpf(lo) * (1 + mpmath.mpf(10) ** -k), d)["norm"] for k in (10, 6)]
+                if all(mpmath.isfinite(v) and v < 0 for v in near) and abs(near[0]) < abs(near[1]):
+                    at_edge, ph = True, lo
+            elif merged:
+                self.notes.append(f"{d}: the photon orbit merges with the inner edge r = {lo:.10g}")
             start = ph if ph is not None else lo
-            bound = [q for q in self._scan(*self._fns(d, "energy", 1.0), start, hi) if q.rising is False]
-            stable = [q for q in self._scan(*self._fns(d, "dE"), start, hi) if q.rising is True]
+            stable_in = [q for q in self._scan(*self._fns(d, "dE"), start, hi) if q.rising is True]
+            stable_out = [q for q in self._scan(*self._fns(d, "dE"), start, hi) if q.rising is False]
+            isco = stable_in[0].radius if stable_in else None
+            if at_edge and isco is None:
+                with mpmath.workdps(DPS):
+                    near = [self.orbit_mp(mpmath.mpf(lo) * (1 + mpmath.mpf(10) ** -k), d)["dE"] for k in (10, 6, 4)]
+                if all(mpmath.isfinite(v) and v > 0 for v in near):
+                    isco = lo
+            osco = None
+            if isco is not None:
+                later = [q.radius for q in stable_out if q.radius > isco]
+                osco = later[0] if later else None
+            if self.asymptotically_flat:
+                bound = [q.radius for q in self._scan(*self._fns(d, "energy", 1.0), start, hi) if q.rising is False]
+            else:
+                bound = self._bound_root(d, start, isco if isco not in (None, lo) else hi)
+            mb = bound[0] if bound else None
+            if at_edge and mb is None:
+                o = self.orbit_np(np.array([lo * (1 + 1e-6)]), d)
+                if self._is_bound(lo * (1 + 1e-6), float(o["energy"][0]), float(o["L"][0])):
+                    mb = lo
             out["photon_orbits"][d] = ph
-            out["marginally_bound"][d] = bound[0].radius if bound else None
-            out["isco"][d] = stable[0].radius if stable else None
+            out["marginally_bound"][d] = mb
+            out["isco"][d] = isco
+            out["osco"][d] = osco
+            if at_edge:
+                same = [k for k, v in (("photon orbit", ph), ("marginally bound orbit", mb), ("ISCO", isco))
+                        if v == lo]
+                self.notes.append(
+                    f"{d}: degenerate limit: {', '.join(same)} at the degenerate horizon r = {lo:.10g} in these "
+                    "coordinates; they are distinct orbits, at different proper distances from each other "
+                    "(Bardeen, Press & Teukolsky 1972 for extremal Kerr)")
             if len(photon) > 1:
                 self.notes.append(f"{d}: {len(photon)} photon orbits found; reporting the outermost")
             if len(bound) > 1:
-                self.notes.append(f"{d}: {len(bound)} radii with E = 1; reporting the innermost")
-            if len(stable) > 1:
-                self.notes.append(f"{d}: {len(stable)} inner edges of stable regions; reporting the innermost")
-            absent = [key for key, value in (("photon orbit", ph), ("marginally bound orbit",
-                                                                   out["marginally_bound"][d]),
-                                             ("ISCO", out["isco"][d])) if value is None]
+                self.notes.append(f"{d}: {len(bound)} marginally bound radii; reporting the innermost")
+            if len(stable_in) > 1:
+                self.notes.append(f"{d}: {len(stable_in)} inner edges of stable regions; reporting the innermost")
+            absent = [key for key, value in (("photon orbit", ph), ("marginally bound orbit", mb),
+                                             ("ISCO", isco)) if value is None]
+            if absent and mb is None and isco is not None and not self.asymptotically_flat and \
+                    self.cosmological_horizon is None:
+                self.notes.append(f"{d}: every circular orbit is bound (the potential grows without limit "
+                                  "outward): no marginally bound orbit")
+                absent = [a for a in absent if a != "marginally bound orbit"]
             if absent:
                 listed = absent[0] if len(absent) == 1 else ", ".join(absent[:-1]) + " or " + absent[-1]
                 self.notes.append(f"{d}: no {listed} found for r in ({lo:.6g}, {hi:.6g})")
@@ -698,8 +956,11 @@ class Equatorial:
         import numpy as np
 
         out: dict[str, Any] = {"radius": float(radius), "direction": direction}
-        if self.horizons.roots and radius <= self.horizons.roots[-1].radius:
+        lo, hi = self.region
+        if lo > 0 and radius <= lo:
             return {**out, "exists": False, "reason": "inside the outer horizon"}
+        if hi is not None and radius >= hi:
+            return {**out, "exists": False, "reason": f"beyond the cosmological horizon r = {hi:.10g}"}
         with mpmath.workdps(DPS):
             o = self.orbit_mp(radius, direction)
             if not (mpmath.isfinite(o["disc"]) and o["disc"] >= 0 and mpmath.isfinite(o["Omega"])):
@@ -720,24 +981,36 @@ class Equatorial:
         force[idx["radial"]] = u @ dg_r @ u
         if idx["polar"] is not None:
             force[idx["polar"]] = u @ dg_th @ u
-        accel = -0.5 * np.linalg.solve(g, force)  # Gamma^mu_ab u^a u^b for a metric independent of t and phi
+        # Gamma^mu_ab u^a u^b for a metric independent of t and phi; a Killing circle of zero size on the equator
+        # (an axis, where the chart is degenerate) carries no velocity and no force: it is left out
+        names = [str(c) for c in self.chart.spec.coords]
+        keep = [i for i in range(self.chart.n) if names[i] not in {str(c) for c in self.chart.decoupled}]
+        accel = -0.5 * np.linalg.solve(g[np.ix_(keep, keep)], force[keep])
         return {**out, "exists": True, "Omega": omega,
                 "u": {str(self.chart.time): ut, str(self.chart.azimuth): ut * omega},
                 "energy": vals["energy"], "angular_momentum": vals["L"],
-                "stable": vals["dE"] > 0, "bound": vals["energy"] < 1, "clock_rate": 1 / ut,
+                "stable": vals["dE"] > 0, "bound": self._is_bound(float(radius), vals["energy"], vals["L"]),
+                "clock_rate": 1 / ut / self.clock_reference[0],
                 "norm_residual": abs(norm_residual), "geodesic_residual": float(np.max(np.abs(accel)) * radius)}
 
     def static_observer(self, radius: float) -> dict[str, Any]:
-        """u^t = 1/sqrt(-g_tt) at ``radius``; its clock runs at sqrt(-g_tt) of a distant static clock."""
+        """u^t = 1/sqrt(-g_tt) at ``radius``; its clock runs at sqrt(-g_tt) of coordinate time, divided by the
+        rate of the reference clock (:attr:`clock_reference`)."""
         import mpmath
 
+        lo, hi = self.region
+        if (lo > 0 and radius <= lo) or (hi is not None and radius >= hi):
+            return {"radius": float(radius), "exists": False,
+                    "reason": "inside the outer horizon" if radius <= lo else
+                    f"beyond the cosmological horizon r = {hi:.10g}"}
         with mpmath.workdps(DPS):
             A = self.series_mp(radius)[0]
             if not A < 0:
                 return {"radius": float(radius), "exists": False,
                         "reason": "g_tt >= 0: inside the static limit (ergoregion or horizon)"}
             rate = float(mpmath.sqrt(-A))
-        return {"radius": float(radius), "exists": True, "u": {str(self.chart.time): 1 / rate}, "clock_rate": rate}
+        return {"radius": float(radius), "exists": True, "u": {str(self.chart.time): 1 / rate},
+                "clock_rate": rate / self.clock_reference[0]}
 
     def zamo(self, radius: float) -> dict[str, Any]:
         """The zero-angular-momentum observer: omega = -g_tphi/g_phiphi, u^t = sqrt(g_phiphi/D)."""
@@ -751,7 +1024,8 @@ class Equatorial:
                 return {"radius": float(radius), "exists": False, "reason": "on or inside a horizon"}
             omega, ut = float(-B / C), float(mpmath.sqrt(C / D))
         return {"radius": float(radius), "exists": True, "angular_velocity": omega,
-                "u": {str(self.chart.time): ut, str(self.chart.azimuth): ut * omega}, "clock_rate": 1 / ut}
+                "u": {str(self.chart.time): ut, str(self.chart.azimuth): ut * omega},
+                "clock_rate": 1 / ut / self.clock_reference[0]}
 
     def rotating_clock_rate(self, radius: float, omega: float) -> float | None:
         """d tau/dt of an observer on the equator at ``radius`` moving with angular velocity ``omega``."""
@@ -882,9 +1156,14 @@ def survey(model: Equatorial, radii: Sequence[float] = (), *, units: str = "geom
         "ergosurface": {"radii": [q.radius for q in ergo.roots], "criterion": ERGO_CRITERION,
                         "method": ergo.method},
         "static_limit": length(limit),
+        "static_range": [length(x) for x in model.static_range],
+        "cosmological_horizon": length(model.cosmological_horizon),
+        "static_radius": length(model.static_radius),
+        "clock_reference": model.clock_reference[1],
         "photon_orbits": marks["photon_orbits"],
         "marginally_bound": marks["marginally_bound"],
         "isco": marks["isco"],
+        "osco": marks["osco"],
         "search": {"from": model.inner_edge, "to": model.outer_edge},
         "circular": [],
         "static_observers": [],
@@ -929,10 +1208,24 @@ def _structure_notes(model: Equatorial) -> list[str]:
     notes = []
     n = len(model.horizons.roots)
     notes.append(f"{n} horizon{'s' if n != 1 else ''} found ({model.horizons.method})")
-    limit, outer = model.static_limit, (model.horizons.roots[-1].radius if model.horizons.roots else None)
-    if limit is not None and outer is not None and limit > outer * (1 + 1e-12):
-        notes.append(f"ergoregion on the equator between r = {outer:.10g} and r = {limit:.10g}: "
+    if model.chart.azimuth_note:
+        notes.append(model.chart.azimuth_note)
+    lo, hi = model.region
+    if hi is not None:
+        notes.append(f"the region described is the stationary one between the horizons r = {lo:.10g} and the "
+                     f"cosmological horizon r = {hi:.10g}; there is no asymptotic region")
+    low, high = model.static_range
+    outer = lo if lo > 0 else None
+    if low is not None and outer is not None and low > outer * (1 + 1e-12):
+        notes.append(f"ergoregion on the equator between r = {outer:.10g} and r = {low:.10g}: "
                      "no static observers there")
+    if model.static_radius is not None:
+        notes.append(f"static radius r = {model.static_radius:.10g}: a static observer there is in free fall "
+                     "(d g_tt/dr = 0); no circular geodesics exist beyond it")
+    notes.append(f"clock rates are relative to {model.clock_reference[1]}")
+    if not model.asymptotically_flat:
+        notes.append("bound: the energy lies below the outward barrier of the effective potential at the same "
+                     "angular momentum (not E < 1: there is no rest energy at infinity to compare with)")
     return notes
 
 

@@ -12,7 +12,9 @@ points, 64 per orbit) it measures the drift of the normalisation g(u, u) + 1 and
 momenta p_k = g_ka u^a conjugate to the coordinates the metric does not depend on (Killing
 vectors d/dx^k): the energy E = -p_t when the time coordinate is one of them and the angular
 momentum L = p_phi for the azimuth. The integration stops just before the orbit reaches the
-edge of the chart's domain (a horizon, an axis: an event on the domain margins, 1e-6 inside).
+edge of the chart's domain (a horizon, an axis: an event on the domain margins, 1e-6 inside), on
+approach to a horizon where the time coordinate is singular (u^t beyond 1e6 times its start value),
+and at a cap on the integrator's steps (default 200000) or CPU time (default 60 s).
 
 Orbits:
 
@@ -43,6 +45,37 @@ DEFAULT_ORBITS = 10
 DEFAULT_TAU = 100.0
 EDGE = 1e-6  # stop this close (relative to 1 + max|x0|) to the edge of the chart's domain
 MIN_SAMPLES, SAMPLES_PER_ORBIT, MAX_SAMPLES = 2000, 64, 20000  # points where the drifts are measured
+MAX_STEPS = 200_000  # default cap on the integrator's accepted steps
+MAX_CPU = 60.0  # default cap on the CPU seconds of the integration
+HORIZON_GROWTH = 1e6  # stop when u^t exceeds this many times its start value: a horizon of the time coordinate
+LIMITS = {"step-limit", "cpu-limit"}  # terminations that leave the requested integration unfinished
+
+
+class _Caps:
+    """A terminal event of ``solve_ivp`` that stops the integration after ``max_steps`` accepted steps or
+    ``max_cpu`` CPU seconds. It is called once per accepted step; once a cap is reached it becomes
+    ``t_stop - t`` with t_stop between the last two steps, so the event's root (and the end of the
+    solution) is there."""
+
+    def __init__(self, max_steps: int, max_cpu: float):
+        self.max_steps, self.max_cpu = max_steps, max_cpu
+        self.calls, self.t_prev, self.t_stop, self.reason = 0, 0.0, None, None
+        self.cpu0 = time.process_time()
+        self.terminal, self.direction = True, -1
+
+    def __call__(self, t, _y):
+        if self.t_stop is not None:
+            return self.t_stop - t
+        self.calls += 1
+        if self.calls > self.max_steps + 1:  # the first call is the start point
+            self.reason = "step-limit"
+        elif time.process_time() - self.cpu0 > self.max_cpu:
+            self.reason = "cpu-limit"
+        if self.reason is None:
+            self.t_prev = t
+            return 1.0
+        self.t_stop = (self.t_prev + t) / 2
+        return self.t_stop - t
 _MODULES: dict = {}
 
 
@@ -74,8 +107,13 @@ def _float_values(values: Mapping[Any, Any]) -> dict[str, float]:
 def probe(document, exporter, *, chart: str | None = None, params=None, start: str = "", orbit: str = "circular",
           direction: str = "prograde", velocity: str | None = None, azimuth: str | None = None,
           tau: float | None = None, orbits: float | None = None, rtol: float = 1e-12, atol: float = 1e-12,
+          max_steps: int = MAX_STEPS, max_cpu: float = MAX_CPU,
           context: Mapping[str, Any] | None = None) -> dict[str, Any]:
-    """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``)."""
+    """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``).
+
+    The integration stops at the edge of the chart's domain, on approach to a horizon of the time coordinate
+    (u^t beyond HORIZON_GROWTH times its start value), after ``max_steps`` accepted steps or after ``max_cpu``
+    CPU seconds; ``termination`` says which (``step-limit`` and ``cpu-limit`` leave it unfinished)."""
     import numpy as np
     from scipy.integrate import solve_ivp
 
@@ -89,6 +127,10 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
     for name, value in (("--rtol", rtol), ("--atol", atol)):
         if not (0 < value < 1):
             raise InputError(name, None, f"{value} is not a tolerance between 0 and 1")
+    if not (isinstance(max_steps, int) and max_steps >= 1):
+        raise InputError("--max-steps", None, f"{max_steps} is not a positive number of steps")
+    if not (max_cpu > 0 and math.isfinite(max_cpu)):
+        raise InputError("--max-cpu", None, f"{max_cpu} is not a positive number of CPU seconds")
     context = dict(context or {"revision": document.hash, "checks": []})
     chart = chart_name(document, {"chart": chart})
     context["chart"] = chart
@@ -171,6 +213,16 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
 
         leaves.terminal, leaves.direction = True, -1
         events.append(leaves)
+    ut_limit = HORIZON_GROWTH * max(1.0, abs(float(u0[0])))
+
+    def horizon(_t, y):
+        value = abs(y[n])
+        return ut_limit - value if math.isfinite(value) else -1.0
+
+    horizon.terminal, horizon.direction = True, -1
+    events.append(horizon)
+    caps = _Caps(max_steps, max_cpu)
+    events.append(caps)
     started = time.perf_counter()
     with np.errstate(all="ignore"):
         sol = solve_ivp(rhs, (0.0, tau), np.concatenate([x0, u0]), method="DOP853", rtol=rtol, atol=atol,
@@ -178,6 +230,18 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
     seconds = time.perf_counter() - started
     if sol.status == -1:
         termination, detail = "failed", f"{sol.message} (at tau = {sol.t[-1]:.12g}, {_show(coords, sol.y[:n, -1])})"
+    elif sol.status == 1 and caps.reason is not None and len(sol.t_events[-1]):
+        termination = caps.reason
+        what = (f"the step cap of {max_steps} steps" if caps.reason == "step-limit"
+                else f"the CPU-time cap of {max_cpu:g} s")
+        option = "--max-steps" if caps.reason == "step-limit" else "--max-cpu"
+        detail = (f"stopped by {what} at tau = {sol.t[-1]:.12g} of {tau:.12g}, {_show(coords, sol.y[:n, -1])}; "
+                  f"raise {option} or shorten --tau")
+    elif sol.status == 1 and len(sol.t_events[-2]):
+        termination = "horizon"
+        detail = (f"approached a horizon: u^{coords[0]} = {abs(sol.y[n, -1]):.6g} grew beyond {HORIZON_GROWTH:g} "
+                  f"times its start value at tau = {sol.t[-1]:.12g}, {_show(coords, sol.y[:n, -1])} "
+                  f"(the time coordinate is singular there)")
     elif sol.status == 1:
         k = int(np.argmin(module.domain_margins(sol.y[:n, -1], p)))
         termination = "domain-edge"
@@ -233,7 +297,8 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         "steps": int(len(sol.t) - 1),
         "samples": int(len(taus)),
         "rhs_evaluations": int(sol.nfev),
-        "integrator": {"method": "DOP853", "rtol": rtol, "atol": atol},
+        "integrator": {"method": "DOP853", "rtol": rtol, "atol": atol, "max_steps": max_steps,
+                       "max_cpu_seconds": max_cpu},
         "drift": drift,
         "seconds": round(seconds, 3),
     }

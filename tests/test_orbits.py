@@ -206,11 +206,16 @@ def test_circular_orbit_derivatives_against_mpmath():
 def test_extremal_kerr_has_one_degenerate_horizon():
     # a = M: Delta = (r - M)^2, one horizon at r = M (Carroll 2004 section 6.6). In Boyer-Lindquist
     # coordinates the prograde ISCO, photon orbit and marginally bound orbit all tend to r = M
-    # (BPT 1972, discussion after eq. 2.21), so none lies outside the horizon; the retrograde ISCO is 9M
-    # and the retrograde photon orbit 4M (BPT 1972 eqs. 2.18, 2.21 at a = M).
+    # (BPT 1972, discussion after eq. 2.21): at a = M all three are r = M, distinct orbits at different proper
+    # distances (the degenerate limit), reported as r = M with a note; the retrograde ISCO is 9M, the retrograde
+    # photon orbit 4M and the retrograde marginally bound orbit 2M + a + 2 sqrt(M (M + a)) = 3 + 2 sqrt(2)
+    # (BPT 1972 eqs. 2.18, 2.19, 2.21 at a = M; equation numbers recalled from memory).
     m = model("kerr", ("M=1", "a=1"))
     assert [(q.radius, q.multiplicity) for q in m.horizons.roots] == [(pytest.approx(1.0), 2)]
-    assert m.landmarks["isco"]["prograde"] is None and m.landmarks["photon_orbits"]["prograde"] is None
+    for key in ("isco", "photon_orbits", "marginally_bound"):
+        assert m.landmarks[key]["prograde"] == pytest.approx(1.0, abs=1e-12), key
+    assert any("degenerate limit" in n and "prograde" in n for n in m.notes)
+    assert m.landmarks["marginally_bound"]["retrograde"] == pytest.approx(3 + 2 * 2**0.5, abs=1e-8)
     assert m.landmarks["isco"]["retrograde"] == pytest.approx(9.0, abs=1e-8)
     assert m.landmarks["photon_orbits"]["retrograde"] == pytest.approx(4.0, abs=1e-8)
 

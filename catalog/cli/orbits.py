@@ -56,6 +56,9 @@ def orbits(
         "--surface-j2", metavar="J2", help="Quadrupole moment J2 of the body, added to the surface potential "
                                            "(weak field).")] = "0",
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape, see README).")] = False,
+    azimuth: Annotated[str | None, typer.Option(
+        "--azimuth", metavar="NAME", help="The azimuthal coordinate of the circular orbits when the chart has "
+                                          "several Killing angles (default: phi or varphi).")] = None,
     plot: Annotated[Path | None, typer.Option(
         "--plot", metavar="PATH.png", help="Write a PNG of E, u^t and Omega against r with the landmarks "
                                            "(needs matplotlib: pip install 'gravicat[plot]').")] = None,
@@ -73,7 +76,7 @@ def orbits(
     spec = build_chart(doc, chart)
     system = units.value
     params = lib.resolve_parameters(doc, spec, settings or (), units=system)
-    model = lib.EquatorialChart(spec, doc.chart_names).bind(params)
+    model = lib.EquatorialChart(spec, doc.chart_names, azimuth=azimuth).bind(params)
     names = {str(p): params.exact[str(p)] for p in spec.params}
     radii = []
     for text in radius or ():
@@ -124,14 +127,23 @@ def _print_report(rep: dict[str, Any]) -> None:
     typer.echo(f"horizons: {hz['count']} found{': ' + r + ' = ' + listed + length if hz['count'] else ''} "
                f"[{hz['method']}]")
     ergo = ", ".join(_fmt(x) for x in rep["ergosurface"]["radii"]) or "none"
-    limit = rep["static_limit"]
-    typer.echo(f"ergosurface on the equator (g_tt = 0): {r} = {ergo}{length if ergo != 'none' else ''}; "
-               + (f"static observers exist for {r} > {_fmt(limit)}{length}" if limit is not None
-                  else "no static limit found"))
+    low, high = rep["static_range"]
+    if low is None:
+        where = "no static observers in this region"
+    elif high is None:
+        where = f"static observers exist for {r} > {_fmt(low)}{length}"
+    else:
+        where = f"static observers exist for {_fmt(low)} < {r} < {_fmt(high)}{length}"
+    typer.echo(f"ergosurface on the equator (g_tt = 0): {r} = {ergo}{length if ergo != 'none' else ''}; {where}")
+    if rep["cosmological_horizon"] is not None:
+        typer.echo(f"cosmological horizon: {r} = {_fmt(rep['cosmological_horizon'])}{length}")
+    if rep["static_radius"] is not None:
+        typer.echo(f"static radius (a static observer is in free fall): {r} = {_fmt(rep['static_radius'])}{length}")
     typer.echo("")
-    emit_table([[label, _fmt(rep[key]["prograde"]), _fmt(rep[key]["retrograde"])]
-                for label, key in (("photon orbit", "photon_orbits"), ("marginally bound orbit", "marginally_bound"),
-                                   ("ISCO", "isco"))],
+    landmarks = [("photon orbit", "photon_orbits"), ("marginally bound orbit", "marginally_bound"), ("ISCO", "isco")]
+    if any(v is not None for v in rep["osco"].values()):
+        landmarks.append(("outermost stable orbit", "osco"))
+    emit_table([[label, _fmt(rep[key]["prograde"]), _fmt(rep[key]["retrograde"])] for label, key in landmarks],
                ["landmark" + (" (m)" if si else ""), "prograde", "retrograde"])
     omega_unit = " (rad/s)" if si else ""
     if rep["circular"]:
@@ -147,7 +159,7 @@ def _print_report(rep: dict[str, Any]) -> None:
                          f"|g(u,u)+1| = {c['norm_residual']:.1e} {extra}".rstrip()])
         emit_table(rows, [r, "direction", "Omega" + omega_unit, f"u^{t}", f"u^{phi}", "E",
                           "L" + (" (m^2/s)" if si else ""), "stable", "bound", "check / clock"])
-        typer.echo("\nstatic observers (clock rate relative to a static clock far away):")
+        typer.echo(f"\nstatic observers (clock rate relative to {rep['clock_reference']}):")
         emit_table([[_fmt(s["radius"]), _fmt(s["u"][t], 15), _fmt(s["clock_rate"], 15)]
                     + ([f"{s['clock_offset_us_per_day']:+.6g}"] if si else []) if s["exists"]
                     else [_fmt(s["radius"]), "-", "-", s["reason"]] for s in rep["static_observers"]],

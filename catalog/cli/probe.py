@@ -54,6 +54,10 @@ def probe(
     = None,
     rtol: Annotated[float, typer.Option("--rtol", help="Relative tolerance of the integrator.")] = 1e-12,
     atol: Annotated[float, typer.Option("--atol", help="Absolute tolerance of the integrator.")] = 1e-12,
+    max_steps: Annotated[int, typer.Option("--max-steps", help="Stop after this many integrator steps "
+                                                               "(exit 1: unfinished).")] = 200_000,
+    max_cpu: Annotated[float, typer.Option("--max-cpu", help="Stop after this many CPU seconds (exit 1: "
+                                                             "unfinished).")] = 60.0,
     max_drift: Annotated[float | None, typer.Option("--max-drift", help="Exit 1 if the normalisation or a "
                                                                         "conserved momentum drifts more.")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")] = False,
@@ -70,7 +74,7 @@ def probe(
                        "(see 'gravicat plugins')")
     report = run_probe(doc, exporter, chart=chart, params=params, start=start, orbit=orbit, direction=direction,
                        velocity=velocity, azimuth=azimuth, tau=tau, orbits=orbits, rtol=rtol, atol=atol,
-                       context=context)
+                       max_steps=max_steps, max_cpu=max_cpu, context=context)
     problems = _problems(report, max_drift)
     if as_json:
         emit_json(report)
@@ -86,6 +90,8 @@ def _problems(report, max_drift) -> list[str]:
     out = []
     if report["termination"] == "failed":
         out.append(f"the integration failed: {report['detail']}")
+    if report["termination"] in ("step-limit", "cpu-limit"):
+        out.append(f"the integration is unfinished: {report['detail']}")
     if max_drift is not None:
         drift = report["drift"]
         worst = [("normalisation", drift["normalisation"])]
