@@ -1,4 +1,4 @@
-"""Random rational points of a chart's domain and parameter ranges.
+"""Random rational points of a chart's domain and parameter ranges, at generic places.
 
 Rejection sampling from boxes read off the inequalities: a relation of the
 form ``v > expr`` or ``expr < v`` whose right side only involves variables
@@ -8,6 +8,18 @@ relation is finally checked on the whole point in 50-digit arithmetic.
 Angles that occur inside trigonometric functions are drawn through the
 rational parameter ``u = tan(angle/2)`` so their sine and cosine are exact
 rationals. The generator is a seeded :class:`random.Random`.
+
+Points are *generic*: each drawn value (parameter, coordinate, ``u`` of an
+angle, value of an arbitrary function or of one of its derivatives) is a
+fraction ``k / p**e`` whose denominator is a power of a prime ``p >= 7`` that
+belongs to that value alone, with ``k`` prime to ``p``. So no value is 0, +-1,
+an integer or a simple fraction (1/2, 3/2...), no value equals a rational
+bound of its range, and no two values are equal or in a simple ratio (the
+``p``-adic valuations differ): a point never lies on an axis (``u = 0``,
+``sin(theta) = 0``), an equator (``u = +-1``), the edge of a range, or a
+place such as ``r = 2 M`` by construction. Singular sets of measure zero
+(axes, horizons) are therefore not sampled; the verifiers report them from
+the symbolic side instead.
 """
 
 from __future__ import annotations
@@ -32,14 +44,36 @@ class Sample:
     funcs: dict = field(default_factory=dict)  # (func, alpha) -> Fraction
 
 
-def _fraction(x: float, rng: random.Random, lo=None, hi=None) -> Fraction:
-    """A rational with a small denominator near ``x``, strictly inside (lo, hi) when given."""
-    den = rng.choice((3, 4, 5, 7, 8, 9, 11, 13, 16, 17, 19, 23))
+# denominators of the values of a point: each drawn value gets its own prime (>= 7)
+PRIMES = tuple(p for p in range(7, 400) if all(p % d for d in range(2, int(p**0.5) + 1)))
+
+
+def generic_fraction(x: float, p: int, lo=None, hi=None) -> Fraction:
+    """The fraction ``k / p**e`` nearest to ``x`` (smallest ``e >= 1``) with ``k`` prime to ``p`` and
+    strictly inside ``(lo, hi)`` when given: never an integer, never a rational bound with another
+    denominator, never equal to a value drawn with another prime."""
+    if not math.isfinite(x):
+        raise ValueError("not a finite number")
+    den = p
     while True:
-        q = Fraction(x).limit_denominator(den)
-        if (lo is None or q > lo) and (hi is None or q < hi) or den > 10**12:
-            return q
-        den *= 10
+        k = round(x * den)
+        for cand in (k, k + 1, k - 1, k + 2, k - 2):
+            if cand % p == 0:
+                continue
+            q = Fraction(cand, den)
+            if (lo is None or q > lo) and (hi is None or q < hi):
+                return q
+        if den > 10**40:  # an interval narrower than anything drawn from floats
+            raise ValueError("the interval is too narrow to draw a point in")
+        den *= p
+
+
+def is_generic(q: Fraction, p: int) -> bool:
+    """Is ``q`` a value :func:`generic_fraction` can return for the prime ``p``?"""
+    d = q.denominator
+    while d % p == 0:
+        d //= p
+    return d == 1 and q.denominator != 1
 
 
 _MP_FUNCS = {
@@ -134,6 +168,12 @@ class Sampler:
         self.angle_q = dict(angle_q or {})
         self.func_keys = list(func_keys)
         self.defaults = defaults or {}
+        # one prime denominator per drawn value (see the module docstring), fixed by the seed
+        keys = [*self.params, *self.coords, *(key for key, _label in self.func_keys)]
+        pool = list(PRIMES[: max(16, 2 * len(keys))])
+        if len(keys) > len(pool):
+            raise ValueError(f"too many values to sample generically ({len(keys)})")
+        self.primes = dict(zip(keys, self.rng.sample(pool, len(keys)), strict=True))
         self.relations = []
         syms = list(self.params) + list(self.coords)
         for rel in relations:
@@ -204,8 +244,21 @@ class Sampler:
         else:
             x = rng.uniform(-3.0, 3.0)
         if v.is_integer:
-            return Fraction(round(x))
-        return _fraction(x, rng, lo, hi)
+            return self._generic_integer(x, lo, hi)
+        try:
+            return generic_fraction(x, self.primes[v], lo, hi)
+        except ValueError:
+            return None
+
+    @staticmethod
+    def _generic_integer(x, lo, hi):
+        """An integer near ``x`` strictly inside the bounds, avoiding 0 and +-1 where the range allows."""
+        k = round(x)
+        inside = [c for c in range(k - 3, k + 4) if (lo is None or c > lo) and (hi is None or c < hi)]
+        if not inside:
+            return None
+        plain = [c for c in inside if abs(c) > 1]
+        return Fraction(min(plain or inside, key=lambda c: abs(c - x)))
 
     def draw(self):
         """One point, or None after a failed attempt (the caller retries)."""
@@ -217,13 +270,19 @@ class Sampler:
             lo, hi, _, _ = self._bounds(v, num)
             if v in self.angle_q:
                 q = self.angle_q[v]
-                a = lo if lo is not None else (0.0 if hi is None else hi - 6.0)
-                b = hi if hi is not None else a + 6.0
+                # an angle without a bound ranges over a whole period, centred on 0
+                a = lo if lo is not None else (-math.pi * q if hi is None else hi - 2 * math.pi * q)
+                b = hi if hi is not None else a + 2 * math.pi * q
                 lo2, hi2 = max(a, -math.pi * q * 0.98), min(b, math.pi * q * 0.98)
                 if hi2 <= lo2:
                     return None
                 theta = lo2 + (hi2 - lo2) * self.rng.uniform(0.03, 0.97)
-                u = _fraction(math.tan(theta / (2 * q)), self.rng)
+                try:  # u = tan(angle/(2 q)) is increasing on the interval
+                    u = generic_fraction(
+                        math.tan(theta / (2 * q)), self.primes[v], math.tan(lo2 / (2 * q)), math.tan(hi2 / (2 * q))
+                    )
+                except ValueError:
+                    return None
                 angles[v] = (u, q)
                 with mpmath.workdps(DIGITS):
                     num[v] = 2 * q * mpmath.atan(mpmath.mpf(u.numerator) / u.denominator)
@@ -263,10 +322,8 @@ class Sampler:
         funcs = {}
         for key, label in self.func_keys:
             _func, alpha = key
-            if sum(alpha) == 0:
-                x = _fraction(self.rng.uniform(0.25, 3.0), self.rng)
-            else:
-                x = _fraction(self.rng.uniform(-3.0, 3.0), self.rng)
+            y = self.rng.uniform(0.25, 3.0) if sum(alpha) == 0 else self.rng.uniform(-3.0, 3.0)
+            x = generic_fraction(y, self.primes[key])
             funcs[key] = x
             shown[label] = str(x)
         return Sample(values, angles, num, shown, funcs)

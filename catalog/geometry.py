@@ -426,7 +426,9 @@ class Geometry(_Curvature):
       keeps opaque sub-expressions as placeholder functions, explained by
       ``legend()``; ``opaque`` maps each placeholder to its expression;
     * ``is_zero(v)``: exact zero test of the path;
-    * ``sample_points()``, ``draw_point()``: :class:`PointData` (seeded, cached);
+    * ``sample_points()``, ``draw_point()``: :class:`PointData` (seeded, cached; generic points,
+      see :mod:`gravicat._sampling`); ``degeneracy()``: why the inverse metric does not exist on
+      the domain, or None;
     * ``verify(fn, ...)``: sampled stage then proof, an :class:`Outcome`;
       ``prove_values(fn)``: symbolic values within the budget;
     * ``label(name, *indices)``: "R[t,r]"-style component label;
@@ -624,6 +626,31 @@ class Geometry(_Curvature):
             return min(cands, key=lambda r: sum(len(p) for p in A[r][col].c.values()) + len(A[r][col].d))
 
         return _invert(self.g, self.n, self._iz, self._nf, self.one, self.zero, pick)
+
+    def degeneracy(self) -> str | None:
+        """Why the inverse metric (hence curvature) does not exist on the domain, or None.
+
+        ``"det g is identically zero"`` or ``"det g = 0 at every sampled point of the domain"``
+        when points of the domain exist but none has an invertible metric; None when one has (det g
+        is then certainly not identically zero) or when the domain gives no point at all. Checks that
+        need the inverse are skipped with this reason; ``structure`` and ``signature`` report the
+        failure. Cached."""
+        if "_degeneracy" in self.__dict__:
+            return self.__dict__["_degeneracy"]
+        reason = None
+        if not self._sample(1) and self.draw_point(need_inverse=False) is not None:
+            reason = "det g = 0 at every sampled point of the domain"
+            if self.field is not None:
+                try:
+                    with self.deadline(self.budget):
+                        if self.is_zero(self.det):
+                            reason = "det g is identically zero"
+                except ZeroDivisionError:  # exact elimination found no pivot
+                    reason = "det g is identically zero"
+                except (BudgetExceeded, Unsupported):
+                    pass
+        self.__dict__["_degeneracy"] = reason
+        return reason
 
     # -- budget --------------------------------------------------------------
     @contextmanager
@@ -928,11 +955,15 @@ def inertia(rows) -> tuple[tuple[int, int, int], bool]:
     The characteristic polynomial of a real symmetric matrix has only real roots, so Descartes'
     rule of signs on its coefficients counts the positive and negative eigenvalues exactly. With
     rational entries (``fmpq``) that is exact arithmetic; with interval entries (``arb`` balls of
-    a sample point) it is certain when every coefficient's ball excludes zero. Otherwise (a ball
-    that contains zero, e.g. a nearly singular matrix) the floating-point eigenvalues of the
-    midpoints are counted, and ``certain`` is False.
+    a sample point, or rationals mixed with balls) it is certain when the constant coefficient's
+    ball excludes zero and every sign a coefficient whose ball contains zero might have gives the
+    same counts. Otherwise (e.g. a nearly singular matrix) the floating-point eigenvalues of the
+    midpoints are counted, and ``certain`` is False. Raises ValueError when an entry is not a
+    finite number (never a numerical library's own exception).
     """
     import flint
+
+    from ._ratfun import arb_precision
 
     n = len(rows)
     flat = [v for row in rows for v in row]
@@ -942,20 +973,52 @@ def inertia(rows) -> tuple[tuple[int, int, int], bool]:
         zero = next(i for i, c in enumerate(coeffs) if c != 0)
         neg, pos = _descartes(coeffs)
         return (neg, zero, pos), True
-    try:
-        p = flint.arb_mat(n, n, [flint.arb(v) for v in flat]).charpoly()
-        coeffs = [p[i] for i in range(n + 1)]
-        if all(c > 0 or c < 0 for c in coeffs):  # every sign certain: no zero eigenvalue
-            neg, pos = _descartes([1 if c > 0 else -1 for c in coeffs])
-            return (neg, 0, pos), True
-    except (TypeError, ValueError):  # an entry that is no rational or ball
-        pass
+    if all(isinstance(v, (flint.fmpq, flint.fmpz, flint.arb, int)) for v in flat):
+        # a floating-point entry (mpmath, float) carries no error bound: it is never taken as exact
+        with arb_precision():
+            balls = [v if isinstance(v, flint.arb) else flint.arb(v) for v in flat]
+            if not all(b.is_finite() for b in balls):
+                raise ValueError("a metric component is not a finite number")
+            p = flint.arb_mat(n, n, balls).charpoly()
+            coeffs = [p[i] for i in range(n + 1)]
+        counts = _ball_descartes(coeffs)
+        if counts is not None:
+            return (counts[0], 0, counts[1]), True
     import numpy as np
 
-    vals = np.linalg.eigvalsh(np.array([[float(v.mid()) if hasattr(v, "mid") else float(v) for v in row]
-                                        for row in rows]))
+    mids = [float(v.mid()) if hasattr(v, "mid") else float(v) for v in flat]
+    if not all(np.isfinite(mids)):
+        raise ValueError("a metric component is not a finite number")
+    try:
+        vals = np.linalg.eigvalsh(np.array(mids).reshape(n, n))
+    except np.linalg.LinAlgError as exc:
+        raise ValueError(f"the eigenvalues of the metric could not be computed ({exc})") from None
     tol = 1e-12 * max(1.0, float(np.max(np.abs(vals))))
     return (int(np.sum(vals < -tol)), int(np.sum(np.abs(vals) <= tol)), int(np.sum(vals > tol))), False
+
+
+def _ball_descartes(coeffs) -> tuple[int, int] | None:
+    """(negative, positive) root counts of a real-rooted polynomial with ball coefficients (ascending),
+    or None when the balls do not decide them. The constant coefficient must exclude 0 (no zero
+    root); a middle coefficient whose ball contains 0 may have either sign or be 0, and the counts
+    are certain when every such choice gives the same counts (the true polynomial is one of them)."""
+    from itertools import product
+
+    if not (coeffs[0] > 0 or coeffs[0] < 0):
+        return None
+    signs = [1 if c > 0 else -1 if c < 0 else None for c in coeffs]
+    open_ = [i for i, s in enumerate(signs) if s is None]
+    if len(open_) > 6:
+        return None
+    found = set()
+    for choice in product((-1, 0, 1), repeat=len(open_)):
+        trial = list(signs)
+        for i, v in zip(open_, choice, strict=True):
+            trial[i] = v
+        found.add(_descartes(trial))
+        if len(found) > 1:
+            return None
+    return found.pop()
 
 
 def _short(s: str, limit: int = 200) -> str:

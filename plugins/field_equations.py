@@ -132,12 +132,15 @@ class FieldEquationsCheck:
     version = "1"
 
     def check(self, geometry):
-        from gravicat.plugins._common import from_outcome, result
+        from gravicat.plugins._common import from_outcome, result, skipped_if_degenerate
 
         spec = geometry.spec
         claim = spec.field_equations
         if claim not in CLAIMS:
             return [result(self.name, "fail", "none", f"unknown field-equations claim {claim!r}", self)]
+        skipped = skipped_if_degenerate(geometry, self.name, self, "the Einstein tensor")
+        if skipped is not None:
+            return [skipped]
         if claim == "none":
             return [self._report_einstein(geometry)]
         missing = _missing(spec, claim)

@@ -23,10 +23,15 @@ class InvariantsCheck:
     def check(self, geometry):
         import sympy as sp
 
-        from gravicat.plugins._common import from_outcome, result
+        from gravicat.plugins._common import from_outcome, result, skipped_if_degenerate
 
         spec = geometry.spec
         out = []
+        skipped = skipped_if_degenerate(geometry, self.name, self, "the curvature")
+        if skipped is not None:  # every declared invariant is skipped for the same reason
+            return [
+                result(f"{self.name}:{key}", "skipped", "none", skipped.detail, self) for key in spec.invariants
+            ] + [skipped]
         for key, inv in spec.invariants.items():
             attr = ATTRS.get(key)
             if attr is None:

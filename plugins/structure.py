@@ -3,8 +3,13 @@
 * symmetric: g_ab - g_ba reduces to zero exactly;
 * every free symbol is a coordinate or a parameter of the chart, and every
   function application is one of the declared ``functions``;
-* non-degenerate: det g is not identically zero, and is non-zero at the
-  sampled points of the domain (a point where it vanishes is a counterexample).
+* non-degenerate: det g is not identically zero (fail when it is, or when it
+  vanishes at every sampled point). The sample points are generic; on the
+  flint path det g is a rational function of the chart's generators, so a
+  zero at some points only lies on a set of measure zero (an axis, a horizon)
+  and is a note, as is such a set found inside the domain from the factors of
+  det g. On the sympy path (``Abs``, ``sign``...) zeros at some points only
+  leave the check inconclusive.
 """
 
 from __future__ import annotations
@@ -89,8 +94,8 @@ class StructureCheck:
                             },
                         )
                     ]
-        # degeneracy: sampled first (the sample points do not need the inverse)
-        agreed = 0
+        # degeneracy: sampled first (the sample points do not need the inverse), then det g symbolically
+        good, zeros = [], []
         for _ in range(geometry.samples):
             pd = geometry.draw_point(need_inverse=False)
             if pd is None:
@@ -102,34 +107,18 @@ class StructureCheck:
             except ZeroDivisionError:
                 continue
             if zero is True or (zero is None and pd.point is None):
-                return [
-                    result(
-                        self.name,
-                        "fail",
-                        "sampled",
-                        "the metric is degenerate: det g = 0 at a point of the domain",
-                        self,
-                        counterexample={"point": dict(pd.sample.shown), "component": "det g", "residual": "0"},
-                    )
-                ]
-            agreed += 1
+                zeros.append(pd)
+            else:
+                good.append(pd)
         try:
             values, err = geometry.prove_values(lambda X: {"det": X.det})
         except ZeroDivisionError:  # exact elimination found no pivot: det g is identically 0
             values, err = {"det": geometry.zero}, None
-        if err:
-            return [
-                result(
-                    self.name,
-                    "inconclusive",
-                    "sampled",
-                    f"symmetric, symbols declared, det g non-zero at {agreed} sample points; "
-                    f"det g not computed symbolically ({err})",
-                    self,
-                )
-            ]
-        det = values["det"]
-        if geometry.is_zero(det):
+
+        def at(pd):
+            return {"point": dict(pd.sample.shown), "component": "det g", "residual": "0"}
+
+        if not err and geometry.is_zero(values["det"]):
             return [
                 result(
                     self.name,
@@ -137,16 +126,62 @@ class StructureCheck:
                     "symbolic",
                     "the metric is degenerate: det g is identically zero",
                     self,
-                    counterexample={"point": {}, "component": "det g", "residual": "0"},
+                    counterexample=at(zeros[0]) if zeros else {"point": {}, "component": "det g", "residual": "0"},
                 )
             ]
+        if zeros and not good:
+            return [
+                result(
+                    self.name,
+                    "fail",
+                    "sampled",
+                    f"the metric is degenerate: det g = 0 at every sampled point of the domain ({len(zeros)})"
+                    + ("" if err else ", though det g is not identically zero as an expression"),
+                    self,
+                    counterexample=at(zeros[0]),
+                )
+            ]
+        if zeros and (err or geometry.field is None):
+            # det g = 0 at some points only, and nothing says whether on a region or on a set of measure zero
+            return [
+                result(
+                    self.name,
+                    "inconclusive",
+                    "sampled",
+                    f"symmetric, symbols declared; det g = 0 at {len(zeros)} of {len(zeros) + len(good)} "
+                    "sample points: whether it vanishes on a region of the domain is not decided"
+                    + (f" (det g not computed symbolically: {err})" if err else f" on the {geometry.path} path"),
+                    self,
+                    counterexample=at(zeros[0]),
+                )
+            ]
+        if err:
+            return [
+                result(
+                    self.name,
+                    "inconclusive",
+                    "sampled",
+                    f"symmetric, symbols declared, det g non-zero at {len(good)} sample points; "
+                    f"det g not computed symbolically ({err})",
+                    self,
+                )
+            ]
+        from gravicat.plugins._common import zero_sets_note
+
+        det = values["det"]
+        notes = ""
+        if zeros:  # a rational function not identically zero vanishes on a set of measure zero only
+            notes += f"; det g = 0 at {len(zeros)} sample points, on a set of measure zero"
+        sets = zero_sets_note(geometry, good)
+        if sets:
+            notes += f"; {sets}"
         return [
             result(
                 self.name,
                 "pass",
                 "symbolic",
                 f"symmetric, every symbol declared, det g = {sp.sstr(geometry.to_sympy(det))[:300]} "
-                f"(not identically zero; non-zero at {agreed} sample points) [path: {geometry.path}]",
+                f"(not identically zero; non-zero at {len(good)} sample points){notes} [path: {geometry.path}]",
                 self,
             )
         ]
