@@ -1,7 +1,8 @@
 """Repair suggestions: find the copying slip that makes a metric file fail its checks.
 
 The commonest reason a newly typed metric fails is a slip in one place: a sign, a power, a
-factor of 2, a swapped symbol, ``sin`` for ``cos``. :func:`find_repairs` looks for it:
+factor of 2 (or a dropped /3 of a cosmological constant, a 4 or a 6), a swapped symbol, ``sin``
+for ``cos``. :func:`find_repairs` looks for it:
 
 1. **Baseline.** The chart is checked with the verifiers ``structure``, ``signature``,
    ``field-equations`` and ``limits`` (the same plugins ``gravicat check`` runs). Only a
@@ -30,7 +31,11 @@ factor of 2, a swapped symbol, ``sin`` for ``cos``. :func:`find_repairs` looks f
    limit. A survivor that still fails, or that breaks a check which did not fail before, is
    dropped.
 
-Suggestions are ranked by edit size (one edit before two), then by how many other checks that
+A repaired chart that is flat (the Riemann tensor vanishes at every sample point) while a declared
+invariant still fails contradicts the entry's own claim of curvature: it is kept as a *doubtful*
+suggestion, ranked after every other one and never the one ``--write`` applies unasked (when all
+suggestions are doubtful the status is ``no-repair-found``). Otherwise suggestions are ranked by edit
+size (one edit before two), then by how many other checks that
 failed before still fail (a repair that also mends a failing transform or observer comes
 first), then by proof status and by how common the kind of slip is. A suggestion is a
 hypothesis to be checked against the source paper: several different metrics may satisfy the
@@ -80,6 +85,7 @@ __all__ = [
     "RepairReport",
     "Written",
     "find_repairs",
+    "suggestion_rank",
     "corruptions",
     "edited_document",
     "enumerate_edits",
@@ -87,7 +93,10 @@ __all__ = [
 ]
 
 #: Edit kinds, in the order of how common the slip is (used to rank suggestions of equal size).
-KINDS = ("sign", "factor-2", "exponent", "trig", "swap", "drop-term", "parameter-power")
+KINDS = ("sign", "factor-2", "small-factor", "exponent", "trig", "swap", "drop-term", "parameter-power")
+#: The factors and divisors of ``small-factor`` (a dropped or stray /3 of a cosmological constant, a 4 or 6 of a
+#: charge or a mass term); 2 is ``factor-2``. Offered where ``factor-2`` is, except on a bare number.
+SMALL_FACTORS = (3, 4, 6)
 #: Verifiers run for the baseline and for the proof of a repaired chart.
 REPAIR_VERIFIERS = ("structure", "signature", "field-equations", "limits")
 HYPOTHESIS_NOTE = ("Each suggestion is a hypothesis: several metrics can satisfy the same claim, so check the "
@@ -137,6 +146,7 @@ class Suggestion:
     checks: list[CheckResult]
     document: MetricDocument  # the repaired document (canonical form)
     still_failing: list[str] = field(default_factory=list)  # non-repairable checks that failed before and still do
+    doubt: str = ""  # why this is probably not the slip (ranked after every other suggestion, never applied unasked)
 
     @property
     def size(self) -> int:
@@ -144,7 +154,7 @@ class Suggestion:
 
     def to_json(self, rank: int) -> dict[str, Any]:
         return {"rank": rank, "size": self.size, "status": self.status, "revision": self.document.hash,
-                "still_failing": self.still_failing,
+                "still_failing": self.still_failing, "doubt": self.doubt,
                 "edits": [e.to_json() for e in self.edits], "checks": [c.to_json() for c in self.checks]}
 
 
@@ -183,10 +193,10 @@ class RepairReport:
 
     @property
     def status(self) -> str:
-        """``nothing-to-repair``, ``repairs-found`` or ``no-repair-found``."""
+        """``nothing-to-repair``, ``repairs-found`` or ``no-repair-found`` (also when every suggestion is doubtful)."""
         if not any(c.failing for c in self.charts):
             return "nothing-to-repair"
-        if any(c.suggestions for c in self.charts):
+        if any(not s.doubt for c in self.charts for s in c.suggestions):
             return "repairs-found"
         return "no-repair-found"
 
@@ -1483,7 +1493,9 @@ def _negate(node: ast.expr) -> ast.expr:
 
 
 def _times(node: ast.expr, factor: Fraction) -> ast.expr:
-    """``node`` multiplied by ``factor`` (2 or 1/2), folded into a leading integer coefficient when there is one."""
+    """``node`` multiplied by ``factor`` (an integer k or 1/k), folded into a trailing integer divisor or a
+    leading integer coefficient when the result stays an integer (``x/3`` times 3 is ``x``, ``2*x`` times 3
+    is ``6*x``), else written as ``k*node`` or ``node/k``."""
     if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.USub):
         return ast.UnaryOp(op=ast.USub(), operand=_times(node.operand, factor))
     c = _const_value(node)
@@ -1491,16 +1503,26 @@ def _times(node: ast.expr, factor: Fraction) -> ast.expr:
         return _num(c * factor)
     if isinstance(node, ast.BinOp) and isinstance(node.op, _MULTIPLICATIVE):
         operands, ops = _flatten(node, _MULTIPLICATIVE)
-        first = operands[0]
-        if isinstance(first, ast.Constant) and type(first.value) is int:
-            new = Fraction(first.value) * factor
-            if new == 1 and ops[0] is ast.Mult:
+        first, last = operands[0], operands[-1]
+        lead = Fraction(first.value) * factor if isinstance(first, ast.Constant) and type(first.value) is int else None
+        if lead is not None and lead.denominator == 1:
+            if lead == 1 and ops[0] is ast.Mult:
                 return _rebuild(operands[1:], ops[1:])
-            operands[0] = _num(new)
+            operands[0] = _num(lead)
             return _rebuild(operands, ops)
-    if factor == 2:
-        return ast.BinOp(left=ast.Constant(value=2), op=ast.Mult(), right=node)
-    return ast.BinOp(left=node, op=ast.Div(), right=ast.Constant(value=2))
+        if ops[-1] is ast.Div and isinstance(last, ast.Constant) and type(last.value) is int and last.value:
+            new = Fraction(last.value) / factor
+            if new.denominator == 1:
+                if new == 1:
+                    return _rebuild(operands[:-1], ops[:-1])
+                operands[-1] = ast.Constant(value=int(new))
+                return _rebuild(operands, ops)
+        if lead is not None:
+            operands[0] = _num(lead)
+            return _rebuild(operands, ops)
+    if factor.denominator == 1:
+        return ast.BinOp(left=ast.Constant(value=int(factor)), op=ast.Mult(), right=node)
+    return ast.BinOp(left=node, op=ast.Div(), right=ast.Constant(value=factor.denominator))
 
 
 def _rename(node: ast.expr, mapping: dict[str, str]) -> ast.expr:
@@ -1567,11 +1589,21 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
         if kind in kinds:
             out.append(_Edit(key, tuple(path), kind, detail, fn))
 
+    def factor_edits(node, path, text, where=""):
+        add(path, "factor-2", f"multiply '{text}' by 2{where}", lambda n: _times(n, Fraction(2)))
+        add(path, "factor-2", f"divide '{text}' by 2{where}", lambda n: _times(n, Fraction(1, 2)))
+        # a dropped or stray 3, 4 or 6 goes with a parameter (Lambda/3, Q**2/4) or a function of the chart, so
+        # terms of coordinates and numbers only are left alone: fewer candidates, fewer look-alike metrics
+        if "small-factor" in kinds and _with_parameters(node):
+            for k in SMALL_FACTORS:
+                add(path, "small-factor", f"multiply '{text}' by {k}{where}", lambda n, k=k: _times(n, Fraction(k)))
+                add(path, "small-factor", f"divide '{text}' by {k}{where}",
+                    lambda n, k=k: _times(n, Fraction(1, k)))
+
     def term_edits(node, path):
         text = _short(canonical(node))
         add(path, "sign", f"flip the sign of '{text}'", _negate)
-        add(path, "factor-2", f"multiply '{text}' by 2", lambda n: _times(n, Fraction(2)))
-        add(path, "factor-2", f"divide '{text}' by 2", lambda n: _times(n, Fraction(1, 2)))
+        factor_edits(node, path, text)
         exchange_edits(node, path)
 
     def exchange_edits(node, path):
@@ -1585,6 +1617,9 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
                     lambda n, x=x, y=y: _rename(n, {x: y, y: x}))
 
     diffs = {s for s, c in classes.items() if c == "differential"}
+
+    def _with_parameters(node) -> bool:
+        return any(classes.get(x) in ("parameter", "definition") or x in funcs for x in names_in(node))
 
     def visit(node, path, term: bool, base: bool = False):
         if isinstance(node, ast.BinOp) and isinstance(node.op, _ADDITIVE):
@@ -1606,8 +1641,7 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
                         lambda n: ast.BinOp(left=n.left, op=ast.Sub() if isinstance(n.op, ast.Add) else ast.Add(),
                                             right=n.right))
                     add(bpath, "drop-term", f"drop the term '{text}'{where}", lambda n: n.left)
-                add(tpath, "factor-2", f"multiply '{text}' by 2{where}", lambda n: _times(n, Fraction(2)))
-                add(tpath, "factor-2", f"divide '{text}' by 2{where}", lambda n: _times(n, Fraction(1, 2)))
+                factor_edits(t, tpath, text, where)
                 if isinstance(t, ast.BinOp) and isinstance(t.op, _ADDITIVE) and not names_in(t) & diffs:
                     implicit_power(t, tpath)  # a parenthesised sum inside a sum: a lost power
                 exchange_edits(t, tpath)
@@ -2291,12 +2325,41 @@ def _repair_chart(doc, cr: ChartRepair, verifiers, docs, max_edits, budget, proo
             t = model.targets[e.key]
             edits.append(EditInfo(field=t.field, kind=e.kind, detail=e.detail, original=t.text,
                                   suggested=cand.texts[e.key]))
+        doubt = ""
+        invariants = sorted(c for c in bad if c.startswith("invariants:"))
+        if invariants and _flat_at_points(screen, cand):
+            doubt = (f"the repaired chart is flat (Riemann = 0 at every sample point) while the declared "
+                     f"{', '.join(invariants)} still fails: probably not the slip")
         cr.suggestions.append(Suggestion(chart=cr.chart, edits=edits, status=worst, checks=results,
-                                         document=repaired, still_failing=sorted(bad)))
-    # rank: fewer edits; then the repairs that also mend other checks that failed (a transform, an
-    # observer, a published invariant); then proved before sampled; then how common the slip is
-    cr.suggestions.sort(key=lambda s: (s.size, len(s.still_failing), s.status != "pass",
-                                       sum(KINDS.index(e.kind) for e in s.edits)))
+                                         document=repaired, still_failing=sorted(bad), doubt=doubt))
+    cr.suggestions.sort(key=suggestion_rank)
+    doubtful = sum(1 for s in cr.suggestions if s.doubt)
+    if doubtful:
+        cr.note = (cr.note + "; " if cr.note else "") + (
+            f"{doubtful} doubtful suggestion(s) make the chart flat while a declared invariant still fails")
+
+
+def suggestion_rank(s: Suggestion) -> tuple:
+    """Sort key of the suggestions of a chart: doubtful ones last; fewer edits; then the repairs that also
+    mend other checks that failed (a transform, an observer, a published invariant); then proved before
+    sampled; then how common the slip is (the order of :data:`KINDS`)."""
+    return (bool(s.doubt), s.size, len(s.still_failing), s.status != "pass", sum(KINDS.index(e.kind) for e in s.edits))
+
+
+def _flat_at_points(screen: _Screen, cand: _Cand) -> bool:
+    """Is the candidate's Riemann tensor zero (every ball contains 0) at every screening point it is defined at?"""
+    seen = 0
+    with _Prec(_PREC):
+        for p in screen.points:
+            try:
+                vals = screen.model.evaluate(p, cand.trees, screen.base("base", p, 2), 2)
+                riemann = _Curv(vals["g"]).riemann()
+            except (_Undefined, _NotQuadratic, ZeroDivisionError, ValueError):
+                continue
+            if not all(x.contains(0) for x in riemann):
+                return False
+            seen += 1
+    return seen > 0
 
 
 # =========================================================================== writing a repair back

@@ -157,6 +157,7 @@ def test_every_kind_of_slip_is_undone(plugins, docs):
     chosen = {
         "sign": ("charts.static.define.f", "1 + 2 * M / r + Q ** 2 / r ** 2"),
         "factor-2": ("charts.static.define.f", "1 - 4 * M / r + Q ** 2 / r ** 2"),
+        "small-factor": ("charts.static.define.f", "1 - 2 * M / r + Q ** 2 / r ** 2 / 4"),
         "exponent": ("charts.static.define.f", "1 - 2 * M / r ** 2 + Q ** 2 / r ** 2"),
         "trig": None,
         "swap": ("charts.static.potential.t", "-M / r"),
@@ -195,6 +196,137 @@ def test_max_edits_2_finds_two_slips(tmp_path, plugins, docs):
     s = symbols_of(spec)
     f = 1 - 2 * s["M"] / s["r"]  # Schwarzschild, MTW (1973) eq. (31.1) (value recalled from memory)
     assert same_metric(spec, sp.diag(-f, 1 / f, s["r"] ** 2, s["r"] ** 2 * sp.sin(s["theta"]) ** 2))
+
+
+# --------------------------------------------------------------------------- dropped divisors (Lambda/3)
+
+DATA = Path(__file__).resolve().parent / "data"
+
+
+def kerr_de_sitter(spec):
+    """Kerr-(anti-)de Sitter in Carter's Boyer-Lindquist-type chart, written out here with sympy:
+    Delta_r = (r^2 + a^2)(1 - Lambda r^2/3) - 2 M r, Delta_theta = 1 + Lambda a^2 cos^2(theta)/3,
+    Xi = 1 + Lambda a^2/3, Sigma = r^2 + a^2 cos^2(theta);
+    ds^2 = -Delta_r/(Xi^2 Sigma) (dt - a sin^2 dphi)^2 + Delta_theta sin^2/(Xi^2 Sigma) (a dt - (r^2 + a^2) dphi)^2
+           + Sigma (dr^2/Delta_r + dtheta^2/Delta_theta).
+    B. Carter, Commun. Math. Phys. 10 (1968) 280; G. W. Gibbons and S. W. Hawking, Phys. Rev. D 15 (1977)
+    2738 (the form recalled from memory; section and equation numbers not checked). Lambda of either sign."""
+    s = symbols_of(spec)
+    M, a, L, r, th = s["M"], s["a"], s["Lambda"], s["r"], s["theta"]
+    sig = r**2 + a**2 * sp.cos(th) ** 2
+    dr = (r**2 + a**2) * (1 - L * r**2 / 3) - 2 * M * r
+    dth = 1 + L * a**2 * sp.cos(th) ** 2 / 3
+    xi = 1 + L * a**2 / 3
+    s2 = sp.sin(th) ** 2
+    k = xi**2 * sig
+    gtt = (-dr + dth * a**2 * s2) / k
+    gtp = (dr * a * s2 - dth * s2 * a * (r**2 + a**2)) / k
+    gpp = (-dr * a**2 * s2**2 + dth * s2 * (r**2 + a**2) ** 2) / k
+    return sp.Matrix([[gtt, 0, 0, gtp], [0, sig / dr, 0, 0], [0, 0, sig / dth, 0], [gtp, 0, 0, gpp]])
+
+
+def kerr_de_sitter_text(sign: str) -> str:
+    """The bundled Kerr-de Sitter file (Lambda > 0), or the same chart with Lambda < 0 (Kerr-anti-de Sitter,
+    the same Carter form; its a = 0 limit is Schwarzschild-anti-de Sitter)."""
+    text = BUNDLED["kerr-de-sitter"].read_text()
+    if sign == "positive":
+        return text
+    for old, new in [
+        ('id = "kerr-de-sitter"', 'id = "repair-kerr-anti-de-sitter"'),
+        ('assume = ["positive"]\nrange = "0 < Lambda < 1/(9*M**2)"\ndefault = "1/100"',
+         'assume = ["negative"]\nrange = "-1/(9*M**2) < Lambda < 0"\ndefault = "-1/100"'),
+        ('reduces-to = "schwarzschild-de-sitter:static"', 'reduces-to = "schwarzschild-anti-de-sitter:static"'),
+        ('domain = ["r > M", "Lambda*r**2 < 3", ', 'domain = ["r > M", '),
+    ]:
+        assert text.count(old) == 1, old
+        text = text.replace(old, new)
+    return text
+
+
+@pytest.mark.parametrize("sign", ["positive", "negative"])
+@pytest.mark.parametrize("old, new, field", [
+    ('Dth = "1 + Lambda*a**2*cos(theta)**2/3"', 'Dth = "1 + Lambda*a**2*cos(theta)**2"', "Dth"),
+    ('Dr = "(r**2 + a**2)*(1 - Lambda*r**2/3) - 2*M*r"', 'Dr = "(r**2 + a**2)*(1 - Lambda*r**2) - 2*M*r"', "Dr"),
+])
+def test_kerr_de_sitter_dropped_divisor_3(tmp_path, plugins, docs, sign, old, new, field):
+    text = kerr_de_sitter_text(sign)
+    assert text.count(old) == 1
+    path = tmp_path / "kds.toml"
+    path.write_text(text.replace(old, new))
+    report = find_repairs(load_file(path), plugins, docs=docs)
+    cr = report.charts[0]
+    assert "field-equations" in cr.failing and not cr.exhausted
+    assert "invariants:ricci-scalar" in {r.check for r in cr.baseline if r.status.value == "fail"}
+    best = cr.suggestions[0]
+    edit = best.edits[0]
+    assert (edit.field, edit.kind) == (f"charts.boyer-lindquist.define.{field}", "small-factor")
+    assert "divide" in edit.detail and "by 3" in edit.detail
+    assert best.status == "pass" and not best.doubt and best.still_failing == []
+    checks = {c.check: c.status.value for c in best.checks}
+    # the declared Ricci scalar R = 4 Lambda (trace of G_ab + Lambda g_ab = 0) is mended too
+    assert checks["field-equations"] == "pass" and checks["invariants:ricci-scalar"] == "pass"
+    spec = build_chart(best.document, "boyer-lindquist")
+    assert same_metric(spec, kerr_de_sitter(spec))
+
+
+def test_small_factor_edits_keep_the_screen_bounded(docs):
+    """The new kind adds at most six edits where factor-2 has two, and only on terms that name a parameter or
+    a definition (a bare number or a term of coordinates alone, such as r**2 dOmega**2, is left alone)."""
+    import re
+
+    from gravicat.repair import _Model, enumerate_edits
+
+    model = _Model(docs["kerr-de-sitter"], "boyer-lindquist")
+    named = {"M", "a", "Lambda", "Sigma", "Dr", "Dth", "Xi"}
+    for target in model.editable:
+        two = enumerate_edits(target, ("factor-2",))
+        small = enumerate_edits(target, ("small-factor",))
+        assert len(small) <= 3 * len(two)
+        for e in small:
+            term = e.detail.split("'")[1]
+            assert set(re.findall(r"[A-Za-z_]\w*", term)) & named, e.detail
+    rn = _Model(docs["reissner-nordstrom"], "static")
+    le = next(t for t in rn.editable if t.field.endswith("line-element"))
+    assert not [e for e in enumerate_edits(le, ("small-factor",)) if "'r ** 2 * (" in e.detail]
+    # the repair of a dropped /3 reads back as the published text
+    dth = next(t for t in model.editable if t.field.endswith("define.Dth"))
+    assert dth.text == "1 + Lambda * a ** 2 * cos(theta) ** 2 / 3"
+
+
+def test_flat_repair_while_a_declared_invariant_fails_is_doubtful(rcli, plugins, docs, tmp_path):
+    # de Sitter, static chart: f = 1 - Lambda r^2/3, R = 4 Lambda (S. W. Hawking and G. F. R. Ellis, The Large
+    # Scale Structure of Space-Time (1973), section 5.2; recalled from memory). Typed with a vacuum claim and
+    # the /3 dropped, the only single edit that satisfies the claim drops the Lambda term: flat space, which
+    # contradicts the declared R = 4 Lambda.
+    src = DATA / "repair-de-sitter-vacuum-claim.toml"
+    report = find_repairs(load_file(src), plugins, docs=docs)
+    cr = report.charts[0]
+    assert cr.failing == ["field-equations"]
+    assert report.status == "no-repair-found"
+    assert len(cr.suggestions) == 1
+    only = cr.suggestions[0]
+    assert only.edits[0].kind == "drop-term" and only.edits[0].suggested == "1"
+    assert only.still_failing == ["invariants:ricci-scalar"] and "flat" in only.doubt
+    path = tmp_path / "ds.toml"
+    path.write_text(src.read_text())
+    r = rcli("repair", str(path), "--write")
+    assert r.exit_code == 1 and "doubtful: the repaired chart is flat" in r.stdout
+    assert "1 doubtful suggestion(s) listed, none applied unasked" in r.stderr
+    assert path.read_text() == src.read_text()  # nothing written
+
+
+def test_doubtful_suggestions_rank_after_every_other():
+    from gravicat.repair import EditInfo, Suggestion, suggestion_rank
+
+    def sug(size, doubt="", still=()):
+        edits = [EditInfo("f", "sign", "", "", "")] * size
+        return Suggestion("c", edits, "pass", [], None, list(still), doubt)
+
+    flat = sug(1, doubt="flat", still=["invariants:ricci-scalar"])
+    pair = sug(2)
+    single_with_failure = sug(1, still=["transforms:x"])
+    ranked = sorted([flat, pair, single_with_failure], key=suggestion_rank)
+    assert ranked == [single_with_failure, pair, flat]
 
 
 # --------------------------------------------------------------------------- the screening arithmetic

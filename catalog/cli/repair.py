@@ -63,6 +63,8 @@ def _print_text(report, write: bool) -> None:
             typer.echo(f"{' ' * len(head)}   repaired chart: {s.status}: {short(_check_list(s.checks), 200)}")
             if s.still_failing:
                 typer.echo(f"{' ' * len(head)}   still failing (failed before too): {', '.join(s.still_failing)}")
+            if s.doubt:
+                typer.echo(f"{' ' * len(head)}   doubtful: {s.doubt}")
     if report.status == "repairs-found":
         from gravicat.repair import HYPOTHESIS_NOTE
 
@@ -81,13 +83,14 @@ def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> li
     from gravicat.repair import write_suggestion
 
     suggestions = report.suggestions
-    if pick is None and len(suggestions) > 1:
-        raise InputError("--write", None, f"{len(suggestions)} suggestions: choose one with --pick RANK "
+    credible = [s for s in suggestions if not s.doubt]  # doubtful ones rank last and are applied only by --pick
+    if pick is None and len(credible) > 1:
+        raise InputError("--write", None, f"{len(credible)} suggestions: choose one with --pick RANK "
                                           "(nothing was written)")
     if pick is not None and not 1 <= pick <= len(suggestions):
         raise InputError("--pick", None, f"{pick} is not a suggestion rank (1 to {len(suggestions)}); "
                                          "nothing was written")
-    chosen = suggestions[(pick or 1) - 1]
+    chosen = suggestions[pick - 1] if pick is not None else credible[0]
     message = "repair: " + "; ".join(f"{e.field}: {e.detail}" for e in chosen.edits)
     if is_file:
         written = write_suggestion(Path(subject), chosen)
@@ -130,9 +133,11 @@ def repair(
 ) -> None:
     """Suggest repairs of a metric that fails its field-equation, signature or limit check.
 
-    Edits one expression in one place (a sign, a power, a factor of 2, a symbol, sin/cos, a dropped term,
-    a parameter squared), screens every candidate by exact evaluation at sample points and proves the
-    survivors. Exit 0 when there is nothing to repair or a repair is suggested, 1 when none is found.
+    Edits one expression in one place (a sign, a power, a factor of 2, a factor or divisor of 3, 4 or 6,
+    a symbol, sin/cos, a dropped term, a parameter squared), screens every candidate by exact evaluation
+    at sample points and proves the survivors. A repair that makes the chart flat while a declared
+    invariant still fails is listed as doubtful, last, and never applied without --pick. Exit 0 when
+    there is nothing to repair or a repair is suggested, 1 when none is found.
     """
     from gravicat.cli.checks import load_subject
     from gravicat.metricfile import load_file
@@ -165,5 +170,7 @@ def repair(
         if as_json:
             raise typer.Exit(1)
         failing = sorted({c for cr in report.charts for c in cr.failing})
+        doubtful = len(report.suggestions)
+        extra = f"; {doubtful} doubtful suggestion(s) listed, none applied unasked" if doubtful else ""
         raise CheckFailed(f"{subject}: no repair found for {', '.join(failing)} "
-                          f"({sum(cr.screened for cr in report.charts)} candidates screened)")
+                          f"({sum(cr.screened for cr in report.charts)} candidates screened{extra})")
