@@ -154,6 +154,20 @@ class AlgGen:
         self.A, self.c, self.B = A, c, B  # elements (free of every root)
 
 
+class RootGen:
+    """A real root generator ``rho = P**(1/q)`` (``q >= 3``; base generator ``index``) of a
+    polynomial ``P`` free of roots: a prime, or a primitive polynomial such as ``rho - tau``. While
+    it is in :attr:`Field.roots`, numerators are kept reduced modulo ``rho**q - P`` (degree < q in
+    ``rho``) and denominators free of ``rho`` (inverses through the adjugate of the
+    multiplication matrix, whose determinant is the norm), so an element is zero exactly when its
+    numerator is. ``d rho = rho dP / (q P)``."""
+
+    __slots__ = ("gen", "index", "q", "P", "rq")
+
+    def __init__(self, gen, index, q, P, rq):
+        self.gen, self.index, self.q, self.P, self.rq = gen, index, q, P, rq
+
+
 def _has_root(e) -> bool:
     """``e`` uses a square-root generator (a non-integer power or ``sin``)."""
     if e.has(sp.sin):
@@ -582,6 +596,107 @@ def _nonnegative_on(expr, coords, relations) -> bool:
         return False
 
 
+_SIGNED = (sp.Abs, sp.sign, sp.Heaviside, sp.DiracDelta)
+
+
+def _positive_parametrisation(coords, relations) -> dict:
+    """Coordinate -> ``b + p`` (``b - p``) with ``p`` a positive dummy, one per relation ``v > b``
+    (``v < b``) of the region, ``b`` free of ``v`` (it may use other coordinates: ``rho > tau``;
+    substitutions are chained, never in a cycle). Every point of the region is reached with
+    positive dummies, so a sign shown for the substituted expression holds on the region."""
+    sub: dict = {}
+
+    def closure(syms):
+        out, todo = set(), list(syms)
+        while todo:
+            x = todo.pop()
+            if x in out:
+                continue
+            out.add(x)
+            if x in sub:
+                todo.extend(sub[x].free_symbols)
+        return out
+
+    for rel in relations or ():
+        if rel is sp.true or rel is sp.false or not isinstance(rel, sp.core.relational.Relational):
+            continue
+        for side, other, lower in (
+            (rel.lhs, rel.rhs, rel.rel_op in (">", ">=")),
+            (rel.rhs, rel.lhs, rel.rel_op in ("<", "<=")),
+        ):
+            if side not in coords or side in sub or side in closure(other.free_symbols):
+                continue
+            p = sp.Dummy("p", positive=True)
+            sub[side] = other + p if lower else other - p
+            break
+    return sub
+
+
+def _chain(x, sub):
+    for _ in range(len(sub)):
+        y = x.xreplace(sub)
+        if y == x:
+            break
+        x = y
+    return x
+
+
+def _sign_on(x, sub):
+    """1, -1 or 0 when the sign of ``x`` is the same on the whole region (see
+    :func:`_positive_parametrisation`), else None."""
+    try:
+        y = sp.together(_chain(x, sub)) if sub else x
+        if y.is_positive:
+            return 1
+        if y.is_negative:
+            return -1
+        if y.is_zero:
+            return 0
+        if y.is_nonnegative:
+            return 2  # >= 0: enough for Abs
+        if y.is_nonpositive:
+            return -2
+    except (TypeError, ValueError, RecursionError):  # pragma: no cover - defensive
+        return None
+    return None
+
+
+def settle_signs(expr, coords, relations):
+    """``Abs``, ``sign``, ``Heaviside`` and ``DiracDelta`` of an argument whose sign the region
+    decides, replaced by their values there: ``Abs(r) -> r`` (so ``sqrt(r**2) -> r``) where
+    ``r >= 0``, ``sign(x) -> 1`` and ``Heaviside(x) -> 1`` where ``x > 0``, ``DiracDelta(x) -> 0``
+    where ``x != 0``. What the region does not decide is left as it is (the caller must not pass
+    it off as a result: see :func:`unsettled`)."""
+    expr = sp.sympify(expr)
+    if not expr.has(*_SIGNED):
+        return expr
+    sub = _positive_parametrisation(tuple(coords), relations)
+
+    def rule(e):
+        x = e.args[0]
+        s = _sign_on(x, sub)
+        if s is None:
+            return e
+        if isinstance(e, sp.Abs):
+            return x if s >= 0 else -x
+        if s in (2, -2):
+            return e
+        if isinstance(e, sp.sign):
+            return sp.Integer(s)
+        if isinstance(e, sp.Heaviside):
+            return sp.Integer(1) if s > 0 else (sp.Integer(0) if s < 0 else e)
+        return sp.Integer(0) if s != 0 else e  # DiracDelta(x, k...) off its support
+
+    return expr.replace(lambda e: isinstance(e, _SIGNED), rule)
+
+
+def unsettled(expr) -> list:
+    """The distributional or sign-dependent sub-expressions (``DiracDelta``, ``Heaviside``, ``sign``,
+    ``Abs``) left in ``expr``, as text: a value containing one is no result."""
+    expr = sp.sympify(expr)
+    return sorted({sp.sstr(a) for a in expr.atoms(*_SIGNED)}, key=len)
+
+
 def simplify_lambertw(expr, coords, params, relations):
     """Replace ``W(u exp(u))`` by ``u`` where that holds: the identity ``W(z) = u`` is checked exactly
     (``z = u exp(u)`` in a field of its own) and the branch condition ``u >= -1`` of the principal
@@ -717,6 +832,8 @@ class Field:
 
     # nested roots as algebraic generators; False restores the tower of quadratic extensions (benchmarks)
     algebraic_roots = True
+    # real roots b**(1/q), q >= 3, as generators with their relation applied; False: no relation (benchmarks)
+    real_roots = True
     # denominators whose unknown part has more terms than this are reduced by gcd, not factored
     FACTOR_LIMIT = 400
 
@@ -732,10 +849,13 @@ class Field:
         self._trig: dict = {}  # angle atom -> lcm of denominators
         self._expq: dict = {}  # exponent atom -> lcm of denominators
         self._pending_trig = []
+        self._root_split: dict = {}  # (base, q) -> [(root generator key, exponent)] or None
         # opaque sub-expressions (see find_aliases): sympy expression -> placeholder function application
         self.alias_sub: dict = {}
         self.alias_expr: dict = {}  # placeholder function class -> the expression it stands for
         taken = {str(x) for x in self.coords + self.params} | {str(f.func) for f in functions}
+        if relations is not None:
+            alias_from = [settle_signs(e, self.coords, relations) for e in alias_from]
         for X in find_aliases(alias_from, self.coords):
             deps = tuple(c for c in self.coords if c in X.free_symbols)
             k = len(self.alias_sub) + 1
@@ -748,6 +868,8 @@ class Field:
             self.alias_expr[ph.func] = X
         self.relations = relations
         if relations is not None:
+            # Abs, sign, Heaviside, DiracDelta that the region decides, then LambertW of u exp(u)
+            exprs = [settle_signs(e, self.coords, relations) for e in exprs]
             exprs = [simplify_lambertw(sp.sympify(e), self.coords, self.params, relations) for e in exprs]
         sub = self.alias_sub
         prepared = [prepare(e.xreplace(sub) if sub else e) for e in exprs]
@@ -785,6 +907,8 @@ class Field:
         self._alg_inner_sym: dict = {}
         self._alg_reducible = False
         self._elim: dict = {}  # eliminated symbol -> its element (a square-root generator)
+        self.roots: list[RootGen] = []  # real root generators whose relation is applied by reduction
+        self._root_of: dict = {}  # base index -> RootGen
         # square roots: sin generators first (their radicand is 1 - cos^2)
         for g in self.base:
             if g.kind == "cos":
@@ -797,11 +921,16 @@ class Field:
                 self._setup_alg(g)
         if len(self.algs) == 1:
             self._eliminate(self.algs[0])
+        for g in self.base:
+            if g.kind == "root":
+                self._setup_root(g)
         for e in self._sqrt_keys:
             self._sqrt_of(self.element(e))
         # pi and e are transcendental, so treating them as free generators loses nothing; an
         # algebraic generator hides no relation when its defining polynomial is irreducible
         kinds = ("coord", "param", "func", "cos", "const", "alias") + (() if self._alg_reducible else ("alg",))
+        if self._roots_independent():
+            kinds += ("root",)
         self.complete = all(g.kind in kinds for g in self.base) and all(
             s.trig is not None or (s.coord is not None and not self._alg_reducible) for s in self.sqrts
         )
@@ -869,8 +998,16 @@ class Field:
                     self._sqrt_keys.append(b)
                 return
             if x.is_Rational:
-                # b**(p/q): a root generator rho = b**(1/q) with d rho = rho db / (q b); rho**q = b is not applied
                 self._scan(b)
+                split = self._root_split_of(b, x.q)
+                if split is not None:
+                    for key, _e in split:
+                        base = key[1]
+                        self._scan(base)
+                        self._gen(key, "root", base ** sp.Rational(1, x.q), {"base": base, "q": x.q})
+                    return
+                # b**(p/q) of a base with roots: a generator rho = b**(1/q) with d rho = rho db / (q b);
+                # rho**q = b is not applied
                 self._gen(
                     ("pow", b, sp.Rational(1, x.q)),
                     "pow",
@@ -928,6 +1065,48 @@ class Field:
             self._pending_trig.append(m)
             return
         raise Unsupported(f"{type(e).__name__} is not on the fast path: {e}")
+
+    def _root_split_of(self, b, q):
+        """``b**(1/q)`` (``q >= 3``, ``b`` a rational function free of roots) as a product of root
+        generators: ``[(key, e)]`` with ``b**(1/q) = prod rho_key**e``, from
+        ``b = (c_n n) / (c_d d)``, the contents split into primes and ``n``, ``d`` primitive with a
+        positive leading coefficient. None when ``b`` is not of that kind (then a generator with no
+        relation, as before)."""
+        key = (b, q)
+        if key in self._root_split:
+            return self._root_split[key]
+        out = None
+        numeric = b.is_Rational and b > 0
+        if self.real_roots and 3 <= q <= 5 and (b.free_symbols or numeric) and not _has_root(b) and not b.atoms(
+            sp.Function
+        ):
+            out = []
+            num, den = sp.fraction(sp.together(b))
+            for part, sign in ((num, 1), (den, -1)):
+                c, rest = sp.factor_terms(sp.expand(part)).as_coeff_Mul()
+                rest = sp.expand(rest)
+                if c < 0:
+                    c, rest = -c, sp.expand(-rest)
+                if rest.is_number:
+                    if rest != 1:
+                        out = None
+                        break
+                elif sp.Poly(rest).LC() < 0 or not sp.Poly(rest).is_primitive:
+                    out = None  # a negative base: its real root is no principal root
+                    break
+                else:
+                    out.append((("root", rest, q), sign))
+                c = sp.Rational(c)
+                for n, sg in ((int(c.p), sign), (int(c.q), -sign)):
+                    if n > 10**12:
+                        out = None
+                        break
+                    for prime, e in sp.factorint(n).items():
+                        out.append((("root", sp.Integer(prime), q), sg * e))
+                if out is None:
+                    break
+        self._root_split[key] = out
+        return out
 
     def _scan_alg(self, b) -> bool:
         """Register ``sqrt(b)`` as an algebraic generator when ``b = A + c sqrt(B)`` with ``A``, ``c``,
@@ -1025,7 +1204,7 @@ class Field:
         c = {m: p for m, p in c.items() if not p.is_zero()}
         if not c:
             return self.zero
-        if self.algs:
+        if self.algs or self.roots:
             c, d, _ = self._reduce_alg(c, d)
             if not c:
                 return self.zero
@@ -1117,7 +1296,7 @@ class Field:
         return c, div
 
     def make_reduced(self, c, d) -> Elem:
-        if self.algs:
+        if self.algs or self.roots:
             c, d, changed = self._reduce_alg(c, d)
             if not c:
                 return self.zero
@@ -1327,6 +1506,18 @@ class Field:
                 c = out
                 if not al.L.is_one():
                     d = d * al.L
+        for rg in self.roots:
+            j, q = rg.index, rg.q
+            if any(p.degrees()[j] >= q for p in c.values()):
+                changed = True
+                out = {}
+                for m, p in c.items():
+                    while p.degrees()[j] >= q:
+                        quo, rem = divmod(p, rg.rq)  # rho**q = P
+                        p = rem + quo * rg.P
+                    if not p.is_zero():
+                        out[m] = p
+                c = out
         return c, d, changed
 
     def _uses_alg(self, p) -> bool:
@@ -1336,6 +1527,8 @@ class Field:
     def _inv_plain(self, num, den) -> Elem:
         """``den / num`` for base polynomials; an algebraic generator in ``num`` is removed by
         multiplying with its conjugates (``r -> -r``, then ``r**2 -> -P2/L - r**2``)."""
+        if self.roots and any(num.degrees()[rg.index] > 0 for rg in self.roots):
+            return self._inv_roots(num, den)
         if not self.algs or not self._uses_alg(num):
             return self.make_reduced({0: den}, num)
         x = Elem(self, {0: num}, self.pone)
@@ -1359,6 +1552,97 @@ class Field:
             mult = mult * xm * Elem(self, {0: conj}, self.pone) * Elem(self, {0: y.d}, self.pone)
             x = Elem(self, {0: nrm}, self.pone)
         return mult * self.make_reduced({0: self.pone}, x.num0())
+
+    # -- real root generators -------------------------------------------------
+    def _setup_root(self, g: BaseGen):
+        """The relation ``rho**q = P`` of the root generator ``g`` (see :meth:`_root_split_of`)."""
+        P = self._el(prepare(g.data["base"]))
+        if not P.is_plain() or not P.d.is_one() or not P.c:
+            raise Unsupported(f"root {g.sym}: base outside the polynomials of the field")
+        P = P.c[0]
+        if any(P.degrees()[h.index] > 0 for h in self.base if h.kind in ("root", "alg", "pow")):
+            raise Unsupported(f"root {g.sym}: base uses another root")
+        j = g.index
+        rg = RootGen(g, j, g.data["q"], P, self.ctx.gens()[j] ** g.data["q"])
+        self.roots.append(rg)
+        self._root_of[j] = rg
+
+    def _roots_independent(self) -> bool:
+        """No hidden relation among the root generators: prime ``q`` and bases that are distinct
+        primes or distinct irreducible polynomials, none of them a ``q``-th power (then
+        ``x**q - P`` is irreducible and the roots of different bases are independent)."""
+        if not self.roots:
+            return True
+        seen = []
+        for rg in self.roots:
+            if not sp.isprime(rg.q):
+                return False
+            if rg.P.is_constant():
+                n = int(rg.P.leading_coefficient())
+                if not sp.isprime(n):
+                    return False
+            else:
+                _c, facs = rg.P.factor()
+                if len(facs) != 1 or facs[0][1] != 1 or abs(int(_c)) != 1:
+                    return False
+            key = str(rg.P)
+            if key in seen:
+                return False
+            seen.append(key)
+        return True
+
+    def _inv_roots(self, num, den) -> Elem:
+        """``den / num`` when ``num`` uses root generators: multiplied by the cofactor of each
+        (the adjugate of its multiplication matrix), the denominator becomes the norm, free of it."""
+        mult = Elem(self, {0: den}, self.pone)
+        x = self.make({0: num}, self.pone)
+        for rg in self.roots:
+            p = x.num0()
+            if p.degrees()[rg.index] <= 0:
+                continue
+            self.tick()
+            cof, nrm = self._root_cofactor(p, rg)
+            if not nrm.c:
+                raise ZeroDivisionError("division by zero modulo a reducible root relation")
+            mult = mult * cof * Elem(self, {0: x.d}, self.pone)
+            x = nrm
+        return mult * self._inv_plain(x.num0(), x.d)  # x is free of root generators now
+
+    def _root_cofactor(self, p, rg: RootGen):
+        """(w, N) with ``p w = N`` modulo ``rho**q - P``, ``N`` free of ``rho``: ``w`` is the first
+        column of the adjugate of the multiplication-by-``p`` matrix on ``1, rho, ..., rho**(q-1)``
+        and ``N`` its determinant (the norm)."""
+        j, q = rg.index, rg.q
+        coeffs = {}
+        for exps, c in p.terms():
+            e = exps[j]
+            mono = list(exps)
+            mono[j] = 0
+            t = self.ctx.from_dict({tuple(mono): c})
+            coeffs[e] = coeffs[e] + t if e in coeffs else t
+        a = [Elem(self, {0: coeffs[k]}, self.pone) if k in coeffs else self.zero for k in range(q)]
+        Pel = Elem(self, {0: rg.P}, self.pone)
+        # column k: p rho**k = sum_i a_i rho**(i+k), rho**q = P
+        M = [[a[r - k] if r >= k else a[r - k + q] * Pel for k in range(q)] for r in range(q)]
+
+        def det(rows, cols):
+            if len(rows) == 1:
+                return M[rows[0]][cols[0]]
+            out = self.zero
+            r0, rest = rows[0], rows[1:]
+            for idx, cc in enumerate(cols):
+                if not M[r0][cc].c:
+                    continue
+                t = M[r0][cc] * det(rest, cols[:idx] + cols[idx + 1 :])
+                out = out + t if idx % 2 == 0 else out - t
+            return out
+
+        rows = list(range(1, q))
+        w = [det(rows, [c for c in range(q) if c != i]) * (-1 if i % 2 else 1) for i in range(q)]
+        N = self.sum([M[0][i] * w[i] for i in range(q)])
+        rho = self.gen_elem(rg.gen)
+        cof = self.sum([w[i] * rho**i for i in range(q)])
+        return cof, N
 
     def _canon_sqrt(self, num, den):
         """``sqrt(num/den) = factor * sqrt(k pn / pd)``: the canonical radicand's key and ``factor``."""
@@ -1477,6 +1761,8 @@ class Field:
     def element(self, expr) -> Elem:
         """Convert a sympy expression (whose atoms were scanned) to an element."""
         expr = sp.sympify(expr)
+        if self.relations is not None and expr.has(*_SIGNED):
+            expr = settle_signs(expr, self.coords, self.relations)
         if self.relations is not None and expr.has(sp.LambertW):
             expr = simplify_lambertw(expr, self.coords, self.params, self.relations)
         if self.alias_sub:
@@ -1611,6 +1897,12 @@ class Field:
                     return self._alg_inner_sym[b] ** int(x.p)
                 return self._sqrt_of(self._el(b)) ** int(x.p)
             if x.is_Rational:
+                split = self._root_split.get((b, x.q))
+                if split is not None:
+                    out = self.one
+                    for key, e in split:
+                        out = out * self._g(key) ** int(e * x.p)
+                    return out
                 return self._g(("pow", b, sp.Rational(1, x.q))) ** int(x.p)
             if b is sp.E:
                 return self._el(sp.exp(x))
@@ -1690,6 +1982,12 @@ class Field:
             w = self._el(g.data["arg"])
             dw = w.diff(i)
             r = None if dw.is_zero() else dw / w
+        elif g.kind == "root":
+            # rho**q = P: d rho = rho dP / (q P)
+            rg = self._root_of[j]
+            dP = self.dpoly(rg.P, i)
+            if dP.c:
+                r = self.gen_elem(g) * dP / (Elem(self, {0: rg.P}, self.pone) * rg.q)
         elif g.kind == "alg":
             # implicit differentiation of F(r) = 0: dr = -(sum_k dF/dg_k dg_k) / (dF/dr)
             al = self._alg_of[j]
@@ -1767,7 +2065,11 @@ class Field:
                 acc = t if acc is None else acc + t
         out = self.zero
         if acc_poly is not None and not acc_poly.is_zero():
-            out = Elem(self, {0: acc_poly}, self.pone) if not self.algs else self.make({0: acc_poly}, self.pone)
+            out = (
+                Elem(self, {0: acc_poly}, self.pone)
+                if not (self.algs or self.roots)
+                else self.make({0: acc_poly}, self.pone)
+            )
         if acc is not None:
             out = out + acc
         return out
@@ -2005,6 +2307,15 @@ class Field:
                         ex[j] = val
                         pt._vals = None
                     val = flint.arb(val)
+                elif g.kind == "root":
+                    rg = self._root_of[j]
+                    Pel = Elem(self, {0: rg.P}, self.pone)
+                    ensure(Pel)
+                    val = _root_value(Pel.evaluate(pt), rg.q)
+                    if isinstance(val, flint.fmpq):
+                        ex[j] = val
+                        pt._vals = None
+                    val = flint.arb(val)
                 elif g.kind == "lambertw":
                     w = self._el(g.data["arg"])
                     ensure(w)
@@ -2078,6 +2389,22 @@ def _sqrt_value(v):
     if v.contains(0):
         raise ValueError("radicand too close to zero")
     return v.sqrt()
+
+
+def _root_value(v, q):
+    """Real ``q``-th root of a positive ``fmpq`` (exact when it is a ``q``-th power) or ``arb``; a
+    base that is not positive is outside the chart's real domain (ValueError)."""
+    if isinstance(v, flint.fmpq):
+        if v <= 0:
+            raise ValueError("a root of a base that is not positive")
+        a, ea = sp.integer_nthroot(int(v.p), q)
+        b, eb = sp.integer_nthroot(int(v.q), q)
+        if ea and eb:
+            return flint.fmpq(a, b)
+        v = flint.arb(v)
+    if not v > 0:
+        raise ValueError("a root of a base not separated from zero")
+    return v.root(q)
 
 
 def _content(p):

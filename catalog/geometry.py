@@ -53,7 +53,7 @@ from typing import Any
 import flint
 import sympy as sp
 
-from ._ratfun import BudgetExceeded, Elem, Field, Unsupported, arb_precision
+from ._ratfun import BudgetExceeded, Elem, Field, Unsupported, arb_precision, settle_signs, unsettled
 from ._sampling import DIGITS, Sampler
 
 __all__ = ["Geometry", "PointData", "Outcome", "prove_zero", "BudgetExceeded", "Unsupported"]
@@ -478,7 +478,7 @@ class Geometry(_Curvature):
                 self.fallback_reason = str(e)
         if self.field is None:
             self.path = "sympy"
-            self.g = [[sp.sympify(spec.metric[i, j]) for j in range(self.n)] for i in range(self.n)]
+            self.g = [[self._settle(spec.metric[i, j]) for j in range(self.n)] for i in range(self.n)]
         self.zero = self.field.zero if self.field else sp.Integer(0)
         self.one = self.field.one if self.field else sp.Integer(1)
 
@@ -491,6 +491,12 @@ class Geometry(_Curvature):
         if isinstance(v, Elem):
             return not v.c
         return v == 0
+
+    def _settle(self, e):
+        """sympy path: ``e`` with ``Abs``, ``sign``, ``Heaviside`` and ``DiracDelta`` replaced where
+        the domain and the parameter ranges decide their argument's sign (``sqrt(r**2) -> r`` for
+        ``r > 0``; see :func:`gravicat._ratfun.settle_signs`)."""
+        return settle_signs(e, self.coords, tuple(self.spec.param_ranges) + tuple(self.spec.domain))
 
     def _nf(self, v):
         if self.field is not None:
@@ -515,10 +521,10 @@ class Geometry(_Curvature):
                 except (ZeroDivisionError, ValueError):
                     pass
             return F.is_zero(v)
-        v = sp.sympify(v)
+        v = self._settle(v)
         if v == 0 or sp.cancel(v) == 0:
             return True
-        return sp.simplify(v) == 0
+        return self._settle(sp.simplify(v)) == 0
 
     def val(self, expr):
         """An expression of the chart as a value of this path."""
@@ -528,7 +534,7 @@ class Geometry(_Curvature):
             if self.field is not None:
                 r = self.field.element(sp.sympify(expr))
             else:
-                r = sp.sympify(expr)
+                r = self._settle(expr)
             self._dcache[key] = r
         return r
 
@@ -935,8 +941,17 @@ class Geometry(_Curvature):
                     return fn(self), None
             except BudgetExceeded:
                 return None, "budget"
-        res, err = _run_limited(lambda: {k: v for k, v in fn(self).items()}, budget)
-        return (res, err) if err else (res, None)
+        res, err = _run_limited(lambda: {k: self._settle(sp.cancel(v)) for k, v in fn(self).items()}, budget)
+        if err:
+            return res, err
+        # a value with a distributional or sign-dependent part the domain does not settle is no result
+        left = sorted({a for v in res.values() for a in unsettled(v)}, key=len)
+        if left:
+            return None, (
+                f"the sympy path left {', '.join(left[:3])}{' ...' if len(left) > 3 else ''}, "
+                "which the domain does not settle"
+            )
+        return res, None
 
 
 def _descartes(coeffs) -> tuple[int, int]:
