@@ -47,7 +47,12 @@ from gravicat.errors import CatalogError, CheckFailed, InputError
 #: statuses under which a revision may be exported without ``allow_unverified``
 ACCEPTED = ("pass", "skipped", "inconclusive")
 DEFAULT_BUDGET = 60.0
-CONVENTIONS = "signature (-,+,+,+), G = c = 1"
+
+
+def conventions(n: int) -> str:
+    """The conventions line of a header for an ``n``-dimensional chart: Lorentzian, mostly plus
+    (one minus sign and n - 1 plus signs, what the ``signature`` verifier checks), G = c = 1."""
+    return f"signature ({','.join(['-'] + ['+'] * (n - 1))}), G = c = 1"
 
 
 # --------------------------------------------------------------------------- option text
@@ -420,7 +425,7 @@ class Prepared:
         lines.append("parameters:" + ("" if self.doc.data["parameters"] else " none"))
         lines.extend(self.parameter_lines())
         lines.append(f"domain:    {'; '.join(self.domain_text) or 'the whole chart'}")
-        lines.append(f"conventions: {CONVENTIONS}")
+        lines.append(f"conventions: {conventions(self.n)}")
         return lines
 
 

@@ -166,14 +166,40 @@ def remove_entry(session: Session, slug: str) -> int:
     return count
 
 
-def results_for(session: Session, rev: Revision) -> list[CheckRecord]:
-    """Stored results of a revision: for each (chart, check) the newest row."""
-    rows = session.scalars(select(CheckRecord).where(CheckRecord.revision_id == rev.id)
-                           .order_by(CheckRecord.id)).all()
+def _same_content(digest: str):
+    """The ids of every revision whose content hash is ``digest`` (a subquery).
+
+    Check results belong to content, not to a revision row: the hash covers the whole canonical
+    document (its id included), so a revision stored again with identical content (a ``revert``,
+    or re-adding an older file) is the same metric, and the results of any revision with that
+    content are its results.
+    """
+    return select(Revision.id).where(Revision.hash == digest).scalar_subquery()
+
+
+def _newest(rows) -> list[CheckRecord]:
     latest: dict[tuple[str, str], CheckRecord] = {}
-    for row in rows:
+    for row in rows:  # ordered by id: a later row wins
         latest[(row.chart, row.check)] = row
     return list(latest.values())
+
+
+def results_for(session: Session, rev: Revision) -> list[CheckRecord]:
+    """Stored results of a revision's content: for each (chart, check) the newest row stored
+    against any revision with the same content hash (see :func:`_same_content`)."""
+    rows = session.scalars(select(CheckRecord).where(CheckRecord.revision_id.in_(_same_content(rev.hash)))
+                           .order_by(CheckRecord.id)).all()
+    return _newest(rows)
+
+
+def results_of_content(session: Session, digest: str) -> list[CheckRecord] | None:
+    """Stored results of the content with hash ``digest`` (newest per chart and check), or None
+    when no revision of the catalogue has that content."""
+    if session.scalars(select(Revision.id).where(Revision.hash == digest).limit(1)).first() is None:
+        return None
+    rows = session.scalars(select(CheckRecord).where(CheckRecord.revision_id.in_(_same_content(digest)))
+                           .order_by(CheckRecord.id)).all()
+    return _newest(rows)
 
 
 def save_results(session: Session, rev: Revision, chart: str, results) -> None:
@@ -192,17 +218,30 @@ def _jsonable(value):
 
 
 def stored_versions(session: Session, rev: Revision) -> set[tuple[str, str, str]]:
-    """(chart, verifier, version) triples that already have results for ``rev``."""
+    """(chart, verifier, version) triples that already have results for ``rev``'s content."""
     rows = session.execute(select(CheckRecord.chart, CheckRecord.verifier, CheckRecord.verifier_version)
-                           .where(CheckRecord.revision_id == rev.id).distinct())
+                           .where(CheckRecord.revision_id.in_(_same_content(rev.hash))).distinct())
     return {tuple(r) for r in rows}
 
 
 def status_by_revision(session: Session, revision_ids: list[int]) -> dict[int, str]:
-    """Overall status of each revision from its newest result per (chart, check); absent = unverified."""
-    from gravicat.search import overall_status
+    """Overall status of each revision's content from its newest result per (chart, check), over every
+    revision with the same content hash; a revision without any result is absent (unverified)."""
+    from gravicat.checks import worst
 
-    return overall_status(session, revision_ids)
+    ids = list(revision_ids)
+    if not ids:
+        return {}
+    hash_of = dict(session.execute(select(Revision.id, Revision.hash).where(Revision.id.in_(ids))).all())
+    rows = session.execute(
+        select(Revision.hash, CheckRecord.chart, CheckRecord.check, CheckRecord.status)
+        .join(Revision, CheckRecord.revision_id == Revision.id)
+        .where(Revision.hash.in_(set(hash_of.values()))).order_by(CheckRecord.id))
+    newest: dict[str, dict[tuple[str, str], object]] = {}
+    for digest, chart, check, status in rows:
+        newest.setdefault(digest, {})[(chart, check)] = status
+    by_hash = {digest: worst(found.values()).value for digest, found in newest.items()}
+    return {rid: by_hash[digest] for rid, digest in hash_of.items() if digest in by_hash}
 
 
 def record_to_json(row: CheckRecord) -> dict:

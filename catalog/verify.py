@@ -228,25 +228,36 @@ def _unreported(verifiers: list[Any], reported: set[int], cap: float, out) -> li
 
 
 class BundledDocuments(Mapping[str, MetricDocument]):
-    """The bundled reference catalogue (entry id -> validated document), read on demand.
+    """The documents a ``reduces-to`` target is looked up in, in this order: ``own`` (the subject
+    of a check, later ones first), then ``catalogue`` (the user's catalogue: entry id -> latest
+    document, may be read on demand), then the bundled reference catalogue.
+
+    This one order is used by ``check`` (a file), ``verify`` (catalogue entries) and the workers,
+    so that a limit naming one of the user's entries gets the same verdict from all of them.
 
     ``docs.get("kerr")`` decodes and validates ``catalog/data/spacetimes/kerr.toml`` only (a
     bundled file is named after its id); iterating, ``len()`` or a lookup of an id that is not
     a file name read every file, in file-name order, as :func:`gravicat.store.iter_bundled_documents`
-    does (a later file with the same id wins, as in a dict built from that iterator). ``own``
-    documents (the subject of a check) take precedence over bundled ones with the same id.
+    does (a later file with the same id wins, as in a dict built from that iterator).
     The SQL store is never imported, so resolving a ``reduces-to`` target of a file costs one
     small file, not the whole catalogue.
     """
 
-    def __init__(self, own: Iterable[MetricDocument] = ()):
+    def __init__(self, own: Iterable[MetricDocument] = (), catalogue: Mapping[str, MetricDocument] | None = None):
         self._own = {d.id: d for d in own}
+        self._catalogue = catalogue if catalogue is not None else {}
         self._bundled: dict[str, MetricDocument] = {}
         self._complete = False
 
     def with_document(self, doc: MetricDocument) -> BundledDocuments:
-        """A view with ``doc`` added (it hides a bundled entry of the same id); loaded files are shared."""
-        out = BundledDocuments([*self._own.values(), doc])
+        """A view with ``doc`` added (it hides an entry of the same id); loaded files are shared."""
+        out = BundledDocuments([*self._own.values(), doc], self._catalogue)
+        out._bundled, out._complete = self._bundled, self._complete
+        return out
+
+    def with_catalogue(self, catalogue: Mapping[str, MetricDocument]) -> BundledDocuments:
+        """A view that looks in ``catalogue`` after the own documents and before the bundled files."""
+        out = BundledDocuments(self._own.values(), catalogue)
         out._bundled, out._complete = self._bundled, self._complete
         return out
 
@@ -280,6 +291,9 @@ class BundledDocuments(Mapping[str, MetricDocument]):
     def _lookup(self, key: str) -> MetricDocument | None:
         if key in self._own:
             return self._own[key]
+        found = self._catalogue.get(key)
+        if found is not None:
+            return found
         if key in self._bundled or self._complete:
             return self._bundled.get(key)
         from gravicat.metricfile import SLUG
@@ -309,12 +323,16 @@ class BundledDocuments(Mapping[str, MetricDocument]):
 
     def __iter__(self) -> Iterator[str]:
         self._read_all()
+        seen = set(self._bundled)
         yield from self._bundled
-        yield from (k for k in self._own if k not in self._bundled)
+        for k in [*self._catalogue, *self._own]:
+            if k not in seen:
+                seen.add(k)
+                yield k
 
     def __len__(self) -> int:
         self._read_all()
-        return len(self._bundled.keys() | self._own.keys())
+        return len(self._bundled.keys() | set(self._catalogue) | self._own.keys())
 
 
 def bundled_documents() -> BundledDocuments:
@@ -344,7 +362,8 @@ def run_unit(unit: dict[str, Any]) -> dict[str, Any]:
     chosen = [v for name, v in loaded.items() if name in unit["verifiers"]]
     docs = {k: MetricDocument(v, f"catalogue:{k}") for k, v in unit["docs"].items()}
     doc = MetricDocument(unit["document"], unit["source"])
-    report = check_chart(doc, unit["chart"], chosen, resolve=make_resolver({**docs, doc.id: doc}),
+    # the same order as `check`: the document itself, the user's catalogue, the bundled catalogue
+    report = check_chart(doc, unit["chart"], chosen, resolve=make_resolver(BundledDocuments([doc], docs)),
                          budget=unit["budget"])
     return {"key": unit["key"], "chart": unit["chart"], "path": report.path, "seconds": report.seconds,
             "results": [r.to_json() | {"data": r.data} for r in report.results]}

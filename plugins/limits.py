@@ -135,7 +135,9 @@ class LimitsCheck:
             return result(check, "skipped", "none", f"cannot resolve {lim.reduces_to!r}: no resolver available", self)
         target = resolve(lim.reduces_to)
         if target is None:
-            return result(check, "skipped", "none", f"target chart {lim.reduces_to!r} not found", self)
+            return result(check, "skipped", "none",
+                          f"target chart {lim.reduces_to!r} not found (looked in this document, the user's "
+                          "catalogue and the bundled catalogue)", self)
         n = geometry.n
         if len(target.coords) != n:
             return result(

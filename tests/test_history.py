@@ -108,7 +108,9 @@ def test_diff_shows_fields_symbolic_metric_difference_and_changed_checks(three_r
     assert "charts.exterior.define.f" in human.stdout and "field-equations: pass -> fail" in human.stdout
 
 
-def test_revert_creates_a_new_revision_and_results_stay_with_their_revision(three_revisions):
+def test_revert_creates_a_new_revision_and_reuses_the_results_of_its_content(three_revisions):
+    """Issue 13, item 10: after a revert, export refused ("no checks have been run on this revision")
+    although the identical content was verified. Check results belong to the content hash."""
     cli = three_revisions
     before = {n: json.loads(cli("show", "halcyon-exterior", "--revision", str(n), "--json").stdout)
               for n in (1, 2, 3)}
@@ -123,17 +125,27 @@ def test_revert_creates_a_new_revision_and_results_stay_with_their_revision(thre
     newest = hist[0]
     assert newest["hash"] == before[1]["revision"]  # the same content, so the same hash
     assert newest["message"] == "revert to 1" and newest["author"] == "Ines Varga-Lund"
-    assert newest["status"] == "unverified"  # results are not copied between revisions...
-    assert newest["same_content_as"] == 1 and newest["status_of_same_content"] == "pass"  # ...but reported
+    assert newest["status"] == "pass"  # the results of revision 1's content are revision 4's
+    assert newest["same_content_as"] == 1 and newest["status_of_same_content"] == "pass"
+    shown = json.loads(cli("show", "halcyon-exterior", "--json").stdout)
+    assert shown["number"] == 4 and shown["checks"] == before[1]["checks"]
     # every old revision is still there, with its own results
     for n in (1, 2, 3):
         again = json.loads(cli("show", "halcyon-exterior", "--revision", str(n), "--json").stdout)
         assert again["checks"] == before[n]["checks"]
-    # verifying now stores results against revision 4 only
-    assert cli("verify", "halcyon-exterior").exit_code == 0
+    # export is not refused, and carries the verified status; verify has nothing to compute
+    exported = cli("export", "halcyon-exterior", "--to", "python")
+    assert exported.exit_code == 0, exported.output
+    assert "status:    pass" in exported.stdout[:2000]
+    assert json.loads(exported_json(cli))["checks"] == before[1]["checks"]
+    verified = json.loads(cli("verify", "halcyon-exterior", "--json").stdout)["entries"][0]
+    assert verified["computed"] == 0 and verified["status"] == "pass"
+    # recomputing stores new rows against revision 4; they are the results of that content
+    assert cli("verify", "halcyon-exterior", "--force").exit_code == 0
     after = json.loads(cli("show", "halcyon-exterior", "--json").stdout)
-    assert after["number"] == 4 and after["checks"]
-    for n in (1, 2, 3):
+    assert after["number"] == 4 and after["checks"] and after["checks"] != before[1]["checks"]
+    assert json.loads(cli("show", "halcyon-exterior", "--revision", "1", "--json").stdout)["checks"] == after["checks"]
+    for n in (2, 3):  # other content keeps its own results
         again = json.loads(cli("show", "halcyon-exterior", "--revision", str(n), "--json").stdout)
         assert again["checks"] == before[n]["checks"]
     # reverting to the latest revision, or to a revision with the latest content
@@ -142,6 +154,12 @@ def test_revert_creates_a_new_revision_and_results_stay_with_their_revision(thre
     same = cli("revert", "halcyon-exterior", "1")
     assert same.exit_code == 0 and "nothing stored" in same.stdout
     assert len(json.loads(cli("history", "halcyon-exterior", "--json").stdout)["revisions"]) == 4
+
+
+def exported_json(cli) -> str:
+    out = cli("export", "halcyon-exterior", "--to", "json")
+    assert out.exit_code == 0, out.output
+    return out.stdout
 
 
 def test_bad_ids_and_revisions_are_one_line_errors(empty_catalogue, tmp_path):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 
+import pytest
 import sympy
 from conftest import DATA
 
@@ -43,8 +44,8 @@ def test_flipped_sign_fails_with_a_real_counterexample(cli, tmp_path):
     cex = fe["counterexample"]
     assert cex and cex["component"] and cex["residual"] not in ("0", 0)
     # the residual is real: recompute R_ab of the broken metric with sympy at the reported point
-    point = {k: sympy.Rational(v) for k, v in cex["point"].items() if "/" in v or v.lstrip("-").isdigit()}
-    assert "M" in point and "r" in point
+    # only M and r enter R_rr of this static, spherically symmetric metric; they are exact rationals
+    point = {k: sympy.Rational(cex["point"][k]) for k in ("M", "r")}
     t, r_, th, ph, M = sympy.symbols("t r theta phi M")
     g = sympy.diag(-(1 - 2 * M / r_), 1 / (1 + 2 * M / r_), r_**2, r_**2 * sympy.sin(th) ** 2)
     coords = [t, r_, th, ph]
@@ -189,7 +190,7 @@ def test_unknown_reduces_to_target_is_reported_as_before(cli, tmp_path):
 
     checks, path = _check_limit(cli, tmp_path, "no-such-entry:static")
     lim = checks["limits:same-as-schwarzschild"]
-    assert lim["status"] == "skipped" and lim["detail"] == "target chart 'no-such-entry:static' not found"
+    assert lim["status"] == "skipped" and lim["detail"].startswith("target chart 'no-such-entry:static' not found")
     # the same result as resolving against every bundled document read through the store
     doc = load_file(path)
     chosen = [verifiers(make_plugin_manager())["limits"]]
@@ -215,6 +216,119 @@ def test_check_of_a_file_does_not_import_the_sql_store(tmp_path):
     )
     env = {k: v for k, v in os.environ.items() if not k.startswith("GRAVICAT_")}
     env["GRAVICAT_CONFIG"] = str(tmp_path / "no-config.toml")
+    # no catalogue yet: the user's catalogue is looked in first (issue 13, item 8), but a SQLite
+    # file that does not exist is known to hold nothing without importing SQLAlchemy
+    env["GRAVICAT_DB"] = f"sqlite:///{tmp_path / 'not-created.sqlite'}"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
     assert out.returncode == 0, out.stderr
     assert json.loads(out.stdout.strip().splitlines()[-1]) == {"code": 0, "loaded": []}
+
+
+# --------------------------------------------------------------------------- check and verify agree on targets
+# Issue 13, item 8: `check FILE` reported a limit naming one of the user's own catalogue entries as
+# "skipped, not found" while `verify` of the same content reported "fail". Both now look in the file
+# itself, then the user's catalogue, then the bundled catalogue. The metrics are Schwarzschild's
+# exterior (Misner, Thorne & Wheeler, Gravitation, 1973, eq. 31.1) and a copy with a slip in g_tt.
+
+USERS_TARGET = """
+id = "halcyon-reference"
+title = "Halcyon reference exterior (the group's own entry)"
+field-equations = "none"
+
+[parameters.M]
+assume = ["positive"]
+
+[charts.static]
+coordinates = ["t", "r", "theta", "phi"]
+domain = ["r > 2*M", "0 < theta < pi"]
+line-element = "-(GTT)*dt**2 + dr**2/(1 - 2*M/r) + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+"""
+
+
+def _limit_verdicts(cli, tmp_path, target: str, users_gtt: str | None, *, user_id: str = "halcyon-reference"):
+    """(check's, verify's) status of the limit, with the user's entry ``user_id`` stored first."""
+    assert cli("init", "--empty").exit_code == 0
+    if users_gtt is not None:
+        own = tmp_path / "users-entry.toml"
+        own.write_text(USERS_TARGET.replace("GTT", users_gtt).replace('id = "halcyon-reference"', f'id = "{user_id}"')
+                       .replace("[charts.static]", "[charts.static]" if user_id != "schwarzschild"
+                                else "[charts.schwarzschild]"))
+        assert cli("add", str(own)).exit_code == 0
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", target))
+    checked = cli("check", str(path), "--json", "--only", "limits")
+    by_check = {c["check"]: c for c in json.loads(checked.stdout)["charts"][0]["checks"]}
+    assert cli("add", str(path)).exit_code == 0
+    verified = cli("verify", "halcyon-drift", "--json")
+    stored = {c["check"]: c for c in json.loads(verified.stdout)["entries"][0]["checks"] if c["chart"] == "static"}
+    name = "limits:same-as-schwarzschild"
+    return (by_check[name]["status"], checked.exit_code), (stored[name]["status"], verified.exit_code)
+
+
+def test_limit_to_a_users_entry_with_a_slip_fails_in_check_and_verify(cli, tmp_path):
+    checked, verified = _limit_verdicts(cli, tmp_path, "halcyon-reference:static", "1 - M/r")
+    assert checked == verified == ("fail", 1)
+
+
+def test_limit_to_a_users_matching_entry_passes_in_check_and_verify(cli, tmp_path):
+    checked, verified = _limit_verdicts(cli, tmp_path, "halcyon-reference:static", "1 - 2*M/r")
+    assert checked == verified == ("pass", 0)
+
+
+def test_users_entry_hides_the_bundled_one_of_the_same_id(cli, tmp_path):
+    # the user's own "schwarzschild" (with a slip) is found before the bundled Schwarzschild
+    checked, verified = _limit_verdicts(cli, tmp_path, "schwarzschild:schwarzschild", "1 - M/r",
+                                        user_id="schwarzschild")
+    assert checked == verified == ("fail", 1)
+
+
+def test_bundled_target_not_in_the_users_catalogue_is_resolved_by_verify_too(cli, tmp_path):
+    # an empty catalogue: verify used to report "not found" where check proved the limit
+    checked, verified = _limit_verdicts(cli, tmp_path, "schwarzschild:schwarzschild", None)
+    assert checked == verified == ("pass", 0)
+
+
+# --------------------------------------------------------------------------- the table's detail column
+# Issue 13, item 17: the detail was cut at 70 characters whatever the terminal. Layout rule (common
+# practice, no source): fill the terminal's width, print everything when the output is piped.
+
+
+def _table_lines(stdout: str) -> list[str]:
+    return [line for line in stdout.splitlines() if line.startswith("static ")]
+
+
+def test_piped_check_prints_the_whole_detail(cli, tmp_path):
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", "no-such-entry:static"))
+    r = cli("check", str(path), "--only", "limits")  # CliRunner's output is not a terminal
+    assert r.exit_code == 0, r.output
+    line = next(x for x in _table_lines(r.stdout) if "limits:same-as-schwarzschild" in x)
+    assert line.rstrip().endswith("the user's catalogue and the bundled catalogue)") and "…" not in line
+
+
+@pytest.mark.parametrize("columns", [100, 160])
+def test_check_on_a_terminal_fills_its_width(cli, tmp_path, monkeypatch, columns):
+    import gravicat.cli.checks as checks_cli
+
+    monkeypatch.setattr(checks_cli, "terminal_width", lambda: columns)
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", "no-such-entry:static"))
+    r = cli("check", str(path), "--only", "limits")
+    lines = _table_lines(r.stdout)
+    assert lines and max(len(x) for x in lines) <= columns
+    line = next(x for x in lines if "limits:same-as-schwarzschild" in x)
+    assert line.rstrip().endswith("…") and len(line.rstrip()) > 80  # more than the old 70-character detail
+
+
+def test_fit_last_column_keeps_a_minimum_and_leaves_piped_rows_alone():
+    from gravicat.cli._output import fit_last_column
+
+    rows = [["a", "x" * 200], ["bb", "short"]]
+    assert fit_last_column(rows, ["k", "detail"], None) == rows
+    fitted = fit_last_column(rows, ["k", "detail"], 50)
+    # the first column is drawn 3 wide (the header "k" plus two), then two spaces: 45 are left
+    assert len(fitted[0][1]) == 50 - 5 and fitted[0][1].endswith("…") and fitted[1][1] == "short"
+    from tabulate import tabulate
+
+    assert max(map(len, tabulate(fitted, headers=["k", "detail"], tablefmt="simple").splitlines())) == 50
+    assert len(fit_last_column(rows, ["k", "detail"], 5)[0][1]) == 24  # never narrower than 24

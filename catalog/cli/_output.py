@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import shutil
+import sys
 from collections.abc import Sequence
 from typing import Any
 
@@ -24,3 +26,34 @@ def emit_table(rows: Sequence[Sequence[Any]], headers: Sequence[str]) -> None:
 
 def short(text: str, width: int = 48) -> str:
     return text if len(text) <= width else text[: width - 1] + "…"
+
+
+def terminal_width() -> int | None:
+    """Columns of the terminal standard output is shown on, or None when it is piped or redirected
+    (then nothing is cut: a program or a file gets the whole text)."""
+    try:
+        if not sys.stdout.isatty():
+            return None
+    except (AttributeError, ValueError):  # a replaced or closed stream
+        return None
+    return shutil.get_terminal_size().columns
+
+
+def fit_last_column(rows: Sequence[Sequence[Any]], headers: Sequence[str], width: int | None,
+                    *, minimum: int = 24) -> list[list[Any]]:
+    """``rows`` with the last column shortened so that each table line fits in ``width`` columns.
+    ``width=None``: unchanged (piped). The last column keeps at least ``minimum`` characters,
+    however narrow the terminal.
+
+    Column widths as tabulate's simple format draws them with headers: the longest cell, but at
+    least the header plus two characters, and two spaces between columns.
+    """
+    out = [list(r) for r in rows]
+    if width is None or not out:
+        return out
+    k = len(headers) - 1
+    used = sum(max(len(str(headers[j])) + 2, *(len(str(r[j])) for r in out)) + 2 for j in range(k))
+    room = max(minimum, width - used)
+    for r in out:
+        r[k] = short(str(r[k]), room)
+    return out

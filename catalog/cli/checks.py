@@ -9,7 +9,7 @@ from typing import Annotated
 import typer
 
 from gravicat.cli._base import AppContext, app_context, reports_errors
-from gravicat.cli._output import emit_json, emit_table, short
+from gravicat.cli._output import emit_json, emit_table, fit_last_column, terminal_width
 from gravicat.errors import CheckFailed, InputError
 
 app = typer.Typer()
@@ -45,8 +45,10 @@ def _print_reports(metric: str, reports, as_json: bool) -> str:
     for rep in reports:
         for res in rep.results:
             rows.append([rep.chart, res.check, res.status.value, res.method.value, f"{res.seconds:.3f}",
-                         short(res.detail.replace("\n", " "), 70)])
-    emit_table(rows, ["chart", "check", "status", "method", "seconds", "detail"])
+                         res.detail.replace("\n", " ")])
+    headers = ["chart", "check", "status", "method", "seconds", "detail"]
+    # the detail fills the terminal's width; piped (or --json) it is printed whole
+    emit_table(fit_last_column(rows, headers, terminal_width()), headers)
     for rep in reports:
         for res in rep.results:
             if res.counterexample:
@@ -66,6 +68,53 @@ def load_subject(app_ctx: AppContext, arg: str, revision: str | None = None):
 
     with app_ctx.transaction() as session:
         return store.document_of(store.revision(session, arg, revision))
+
+
+def catalogue_exists(app_ctx: AppContext) -> bool:
+    """Whether the configured catalogue may hold entries, judged without creating anything: a SQLite
+    catalogue whose file does not exist yet (or a URL that does not parse) is not there."""
+    text = app_ctx.settings.database
+    prefix = "sqlite:///"
+    if text.startswith(prefix) and "?" not in text:  # the usual case, decided without importing SQLAlchemy
+        name = text[len(prefix):]
+        return bool(name) and name != ":memory:" and Path(name).expanduser().exists()
+    from sqlalchemy.engine import make_url
+    from sqlalchemy.exc import ArgumentError
+
+    try:
+        url = make_url(text)
+    except ArgumentError:
+        return False
+    return not (url.get_backend_name() == "sqlite" and url.database and url.database != ":memory:"
+                and not Path(url.database).expanduser().exists())
+
+
+def catalogue_targets(app_ctx: AppContext, doc) -> dict:
+    """The latest catalogue documents of the other entries ``doc``'s limits name (entry id -> document).
+
+    Read once here, in the command's process, so that every chart (also one checked in a forked
+    child) resolves a ``reduces-to`` target the way ``verify`` does: the file itself, then the
+    user's catalogue, then the bundled catalogue. Nothing is read when no limit names another
+    entry, and nothing is created: no catalogue (a SQLite file that does not exist, or one never
+    initialised) means no catalogue entries. A catalogue that exists but cannot be read is an error,
+    as in every other command, rather than a silently different verdict.
+    """
+    wanted = sorted({lim["reduces-to"].partition(":")[0] for lim in doc.data["limits"].values()} - {doc.id})
+    if not wanted or not catalogue_exists(app_ctx):
+        return {}
+    from gravicat import store
+    from gravicat.db import current_revision
+    from gravicat.metricfile import MetricDocument
+
+    if current_revision(app_ctx.engine) is None:  # a database never initialised holds no entries
+        return {}
+    found = {}
+    with app_ctx.transaction() as session:
+        for slug in wanted:
+            rev = store.head(session, slug)
+            if rev is not None:
+                found[slug] = MetricDocument(rev.document, f"catalogue:{slug}@{rev.hash[:12]}")
+    return found
 
 
 @app.command("check")
@@ -100,7 +149,8 @@ def check(
         if name not in doc.chart_names:
             raise InputError(str(file), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
     chosen = select_verifiers(verifiers(app_ctx.plugins), only)
-    resolve = make_resolver(bundled_documents().with_document(doc))  # reads only the files a limit names
+    # the file itself, then the user's catalogue, then the bundled catalogue (reads only what a limit names)
+    resolve = make_resolver(bundled_documents().with_catalogue(catalogue_targets(app_ctx, doc)).with_document(doc))
     reports = check_document(doc, chosen, charts=chart, resolve=resolve, budget=budget,
                              jobs=jobs or default_jobs())
     overall = _print_reports(doc.id, reports, as_json)

@@ -29,26 +29,18 @@ def _catalogue_checks(app_ctx: AppContext, doc) -> tuple[str, list[dict]] | None
     A file identical to a stored revision (same canonical hash) is that revision, so its stored
     results apply. Nothing is created: a SQLite catalogue that does not exist yet is not opened.
     """
-    from sqlalchemy import select
-    from sqlalchemy.engine import make_url
-    from sqlalchemy.exc import ArgumentError
+    from gravicat.cli.checks import catalogue_exists
 
+    if not catalogue_exists(app_ctx):
+        return None
     from gravicat import store
-    from gravicat.models import Revision
 
-    try:
-        url = make_url(app_ctx.settings.database)
-    except ArgumentError:
-        return None
-    if url.get_backend_name() == "sqlite" and url.database and url.database != ":memory:" \
-            and not Path(url.database).expanduser().exists():
-        return None
     try:
         with app_ctx.transaction() as session:
-            rev = session.scalars(select(Revision).where(Revision.hash == doc.hash)).first()
-            if rev is None:
+            found = store.results_of_content(session, doc.hash)
+            if found is None:
                 return None
-            return rev.hash, [store.record_to_json(r) for r in store.results_for(session, rev)]
+            return doc.hash, [store.record_to_json(r) for r in found]
     except CatalogError:
         return None
 
