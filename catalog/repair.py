@@ -1693,7 +1693,10 @@ def enumerate_edits(target: _Target, kinds: Iterable[str] = KINDS) -> list[_Edit
                 add(path, "trig", f"{fname} -> {new} in '{_short(canonical(node))}'",
                     lambda n, new=new: ast.Call(func=_name(new), args=n.args, keywords=[]))
             if fname in _MATH:
-                visit(node.args[0], list(path) + [("args", 0)], False)
+                apath = list(path) + [("args", 0)]
+                if _with_parameters(arg) and _const_value(arg) is None:  # exp(2*H*t), sqrt(Lambda/3): a lost factor
+                    factor_edits(arg, apath, _short(canonical(arg)), f" in '{_short(canonical(node), 40)}'")
+                visit(node.args[0], apath, False)
             return
         if isinstance(node, ast.Name):
             name_edits(node, path, in_power=False)

@@ -23,6 +23,12 @@ flipped when no check pins the sign). Targets (the issue): recovery >= 90 %; we 
 recovery rate, the false-suggestion count and the median time, and the median ratio of the
 repair time to a plain ``check`` of the same corrupted chart measured in the same run.
 
+Part 3, dropped divisors. Every chart of the bundled catalogue with a cosmological constant, and
+every ``/3`` (a divisor of a term naming a parameter or a definition) in the expressions its claim is
+built from: the ``/3`` is dropped (``Lambda*a**2*cos(theta)**2/3`` typed as
+``Lambda*a**2*cos(theta)**2``, the slip of the issue), and the original must be recovered and ranked
+first (target: every case). ``--divisors-only`` runs just this part (a few minutes at most).
+
 Part 2, Kerr. One corrupted term in the Boyer-Lindquist chart (the g_t phi term with its factor
 4 typed as 2), the whole file (both charts), ``--jobs 2``: every candidate screened and the
 answer found within 10 s of wall time (target from the issue).
@@ -289,6 +295,66 @@ def run_kerr(jobs: int = 2) -> dict:
     return {"seconds": wall, "found": found, "all_screened": not cr.exhausted and cr.screened == cr.candidates}
 
 
+def divisor_cases():
+    """(entry, chart, field, corrupted text, doc, bad): one /3 dropped in a chart with a cosmological constant."""
+    from gravicat.errors import CatalogError
+    from gravicat.metricfile import build_chart
+    from gravicat.repair import _Model, corruptions, edited_document
+    from gravicat.store import iter_bundled_documents
+
+    cases = []
+    for doc in sorted(iter_bundled_documents(), key=lambda d: d.id):
+        for chart in doc.chart_names:
+            if "cosmological-constant" not in doc.data["charts"][chart]:
+                continue
+            texts = {t.field: t.text for t in _Model(doc, chart).editable}
+            for fld, text in corruptions(doc, chart, "small-factor"):
+                old = texts[fld]
+                # the corruption is "multiply a term by 3" that removed exactly one '/ 3'
+                if old.count(" / 3") != text.count(" / 3") + 1 or old.replace(" / 3", "", 1) != text:
+                    continue
+                try:
+                    bad = edited_document(doc, chart, {fld: text})
+                    build_chart(bad, chart)
+                except CatalogError:
+                    continue
+                cases.append((doc.id, chart, fld, text, doc, bad))
+    return cases
+
+
+def run_divisors(jobs: int, budget: float) -> dict:
+    from gravicat.registry import make_plugin_manager, verifiers
+    from gravicat.repair import find_repairs
+    from gravicat.verify import bundled_documents
+
+    vs = verifiers(make_plugin_manager())
+    docs = bundled_documents()
+    cases = divisor_cases()
+    print(f"dropped /3 in charts with a cosmological constant: {len(cases)} cases")
+    first, broke, times = 0, 0, []
+    for entry, chart, fld, text, doc, bad in cases:
+        t0 = time.perf_counter()
+        report = find_repairs(bad, vs, docs=docs, charts=[chart], jobs=jobs, budget=budget)
+        seconds = time.perf_counter() - t0
+        cr = report.charts[0]
+        found = [same_chart(doc, s.document, chart) for s in cr.suggestions] if cr.failing else []
+        broke += bool(cr.failing)
+        ok = bool(found) and found[0]
+        first += ok
+        times.append(seconds)
+        mark = "-" if not cr.failing else ("ok" if ok else ("ranked" if any(found) else "MISSED"))
+        print(f"  {entry:30s} {chart:18s} {mark:7s} cand={cr.candidates:4d} sugg={len(cr.suggestions)} "
+              f"{seconds:6.2f}s {fld.split('.', 2)[-1]}: {text[:50]}", flush=True)
+    print(f"the slip broke the claim: {broke}; original recovered and ranked first: {first}"
+          + (f"; median time {statistics.median(times):.2f} s" if times else ""))
+    return {"cases": len(cases), "broke": broke, "first": first}
+
+
+def test_dropped_divisor_target():
+    out = run_divisors(1, 60.0)
+    assert out["cases"] >= 5 and out["first"] == out["broke"]
+
+
 def test_kerr_target():
     out = run_kerr(2)
     assert out["found"] and out["all_screened"]
@@ -311,12 +377,19 @@ def main(argv=None) -> int:
     ap.add_argument("--timeout", type=float, default=300.0, help="seconds per corrupted metric (check + repair)")
     ap.add_argument("--skip-kerr", action="store_true")
     ap.add_argument("--skip-recovery", action="store_true")
+    ap.add_argument("--divisors-only", action="store_true", help="only part 3 (dropped /3 of a cosmological "
+                                                                  "constant)")
     args = ap.parse_args(argv)
+    if args.divisors_only:
+        d = run_divisors(args.jobs, args.budget)
+        return 0 if d["first"] == d["broke"] else 1
     ok = True
     if not args.skip_kerr:
         k = run_kerr(2)
         ok = ok and k["found"] and k["all_screened"] and k["seconds"] <= TARGET_KERR_SECONDS
     if not args.skip_recovery:
+        d = run_divisors(args.jobs, args.budget)
+        ok = ok and d["first"] == d["broke"]
         r = run_recovery(args.seed, args.jobs, [e for e in args.entries.split(",") if e] or None,
                          args.limit or None, args.budget, args.timeout)
         ok = ok and r["rate"] >= TARGET_RECOVERY and bool(args.entries or args.limit or r["cases"] >= MIN_CASES)
