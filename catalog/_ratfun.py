@@ -600,10 +600,11 @@ _SIGNED = (sp.Abs, sp.sign, sp.Heaviside, sp.DiracDelta)
 
 
 def _positive_parametrisation(coords, relations) -> dict:
-    """Coordinate -> ``b + p`` (``b - p``) with ``p`` a positive dummy, one per relation ``v > b``
-    (``v < b``) of the region, ``b`` free of ``v`` (it may use other coordinates: ``rho > tau``;
-    substitutions are chained, never in a cycle). Every point of the region is reached with
-    positive dummies, so a sign shown for the substituted expression holds on the region."""
+    """Coordinate -> ``b + p`` (``b - p``) with ``p`` a positive dummy (non-negative for ``>=``,
+    ``<=``), one per relation ``v > b`` (``v < b``) of the region, ``b`` free of ``v`` (it may use
+    other coordinates: ``rho > tau``; substitutions are chained, never in a cycle). Every point of
+    the region is reached with such dummies, so a sign shown for the substituted expression holds
+    on the region."""
     sub: dict = {}
 
     def closure(syms):
@@ -626,7 +627,8 @@ def _positive_parametrisation(coords, relations) -> dict:
         ):
             if side not in coords or side in sub or side in closure(other.free_symbols):
                 continue
-            p = sp.Dummy("p", positive=True)
+            # a closed bound reaches the boundary itself: p >= 0 there
+            p = sp.Dummy("p", positive=True) if rel.rel_op in (">", "<") else sp.Dummy("p", nonnegative=True)
             sub[side] = other + p if lower else other - p
             break
     return sub
@@ -1091,9 +1093,6 @@ class Field:
                     if rest != 1:
                         out = None
                         break
-                elif sp.Poly(rest).LC() < 0 or not sp.Poly(rest).is_primitive:
-                    out = None  # a negative base: its real root is no principal root
-                    break
                 else:
                     out.append((("root", rest, q), sign))
                 c = sp.Rational(c)
