@@ -45,6 +45,20 @@ derivatives are exact and stay in K. ``exp(k W(z))`` is rewritten as
 ``(z / W(z))**k``; ``W(u exp(u))`` becomes ``u`` where the identity is exact
 and ``u >= -1`` follows from the region (:func:`simplify_lambertw`).
 
+Real roots (:class:`RootGen`): ``b**(p/q)`` with ``3 <= q <= 5`` and ``b`` a rational function
+free of roots is written as a product of root generators ``rho**q = P``, one per prime of the
+content of ``b`` and one per primitive polynomial of its numerator and denominator
+(``(3 (rho - tau)/2)**(2/3) = 3**(2/3) (rho - tau)**(2/3) / 2**(2/3)``, Lemaitre's radius). The
+relation is applied: numerators are reduced to degree < q in ``rho`` and denominators kept free
+of it (an inverse is the adjugate of the multiplication matrix over its determinant, the norm),
+with ``d rho = rho dP / (q P)``. An identity that reduces to zero holds for every choice of the
+roots, the real ones included; a sample point where a base is not positive is not used. Other
+rational powers (of a base with square roots, or ``q > 5``) stay generators without a relation.
+
+Signs the region decides (:func:`settle_signs`): ``Abs``, ``sign``, ``Heaviside`` and
+``DiracDelta`` whose argument has one sign on the chart's domain and parameter ranges are replaced
+before conversion (``sqrt(r**2) = Abs(r) = r`` where ``r > 0``).
+
 Opaque sub-expressions (:func:`find_aliases`): a sum of several
 coordinate-dependent roots or transcendental functions, e.g.
 ``1 + m1/sqrt(R1) + m2/sqrt(R2)``, is costly as an element (rationalising it
@@ -59,10 +73,9 @@ is therefore identically zero. A non-zero result is only a definite non-zero
 when the chart uses no generator with a hidden relation (see
 :attr:`Field.complete`); otherwise callers must not call it a failure.
 
-Anything else (``Abs``, ``sign``, other branches of ``LambertW``, inverse
-trigonometric functions, cube roots of sums, exponents depending on
-coordinates) raises :class:`Unsupported`, and the caller falls back to the
-pure sympy path.
+Anything else (``Abs`` and ``sign`` the region does not decide, other branches of ``LambertW``,
+inverse trigonometric functions, exponents depending on coordinates) raises :class:`Unsupported`,
+and the caller falls back to the pure sympy path.
 """
 
 from __future__ import annotations

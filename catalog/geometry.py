@@ -15,17 +15,23 @@ Two exact representations ("paths"):
   ``d/dtheta cos = -sin``), other square roots, nested roots
   ``sqrt(A + c sqrt(B))`` such as Kerr-Schild's ``r`` as algebraic generators
   (defining polynomial, implicit differentiation; other nestings as a tower),
-  ``exp``, ``log``, ``LambertW`` and symbolic powers, each with its derivation
-  rule. Fractions are kept reduced by gcd, so an
+  real roots ``b**(p/q)`` (``q`` = 3..5) as root generators with ``rho**q = P``
+  applied (Lemaitre's radius), ``exp``, ``log``, ``LambertW`` and symbolic
+  powers, each with its derivation rule. ``Abs``, ``sign``, ``Heaviside`` and
+  ``DiracDelta`` whose argument's sign the domain decides are replaced first
+  (``sqrt(r**2) = r`` where ``r > 0``). Fractions are kept reduced by gcd, so an
   identity is proved when its residual reduces to 0. A sum of several
   coordinate-dependent roots or transcendental functions in the metric
   (``1 + m1/sqrt(R1) + m2/sqrt(R2)``) is carried as an opaque function of the
   coordinates (:attr:`Geometry.opaque`), expanded only inside zero tests.
 * ``"sympy"``: the fallback when a chart uses something the field cannot
-  represent (``Abs``, ``sign``, inverse trigonometric functions, other
-  branches of ``LambertW``, cube roots of sums...): sympy expressions with
-  ``cancel`` as the normal form
-  and ``simplify`` as a last resort, run in a child process under the budget.
+  represent (``Abs`` or ``sign`` the domain does not decide, inverse
+  trigonometric functions, other branches of ``LambertW``...): sympy
+  expressions, simplified under the domain in the same way, with ``cancel`` as
+  the normal form and ``simplify`` as a last resort, run in a child process
+  under the budget. A value that still holds ``DiracDelta``, ``Heaviside``,
+  ``sign`` or ``Abs`` is no result (:meth:`Geometry.prove_values` reports it
+  as an error, so the verifier says ``inconclusive``).
   :attr:`Geometry.path` and :attr:`Geometry.fallback_reason` say which.
 
 Proof strategy (:meth:`Geometry.verify`): a residual function ``fn(X)``
