@@ -215,6 +215,8 @@ def test_kerr_doran_vacuum_and_painleve_gullstrand_limit():
     report, res = _check(load_file(DORAN), "field-equations", "invariants", "limits")
     assert report.path == "flint"
     assert res["field-equations"].status.value == "pass", res["field-equations"].detail
+    # Kretschmann scalar: R. C. Henry, ApJ 535 (2000) 350, Q = 0 (recalled from memory)
+    assert res["invariants:kretschmann"].status.value == "pass", res["invariants:kretschmann"].detail
     lim = res["limits:nonrotating"]
     assert lim.status.value == "pass" and lim.method.value == "symbolic", lim.detail
     assert "flint" in lim.detail
