@@ -19,6 +19,7 @@ The validation half imports nothing heavy; only :func:`to_sympy` needs sympy.
 from __future__ import annotations
 
 import ast
+import math
 import re
 import sys
 from collections.abc import Mapping
@@ -444,6 +445,203 @@ def names_in(tree: ast.AST) -> set[str]:
         if isinstance(node, ast.Name):
             out.add(node.id)
     return out
+
+
+# --------------------------------------------------------------------------- plain numbers, no sympy
+
+
+class Undecided(Exception):
+    """:func:`number` cannot settle the value (a name without a value, a function of the chart,
+    a division by zero...)."""
+
+
+class NotReal(Undecided):
+    """The value is certainly not a finite real number (``sqrt(-1)``, ``log(0)``)."""
+
+
+_NUMBER_DIGITS = 60  # working precision when a value is not rational
+_UNDECIDED_BELOW = 40  # a difference below 10**-40 (relative) is not trusted to decide a comparison
+_MAX_EXACT_BITS = 100_000
+_MAX_ARGUMENT = 100_000  # exponential and periodic functions of a larger argument are not evaluated
+_GROWING = frozenset("sin cos tan cot sec csc sinh cosh tanh coth exp".split())
+
+
+def _root(value: Fraction, q: int) -> Fraction | None:
+    """The exact non-negative ``q``-th root of a non-negative rational, or None when it is irrational."""
+
+    def iroot(n: int) -> int | None:
+        if q == 2:
+            r = math.isqrt(n)
+        else:
+            r = int(round(float(n) ** (1.0 / q))) if n.bit_length() < 1000 else None
+            if r is None:
+                return None
+            r = next((c for c in (r - 1, r, r + 1) if c >= 0 and c**q == n), -1)
+        return r if r >= 0 and r**q == n else None
+
+    top, bottom = iroot(value.numerator), iroot(value.denominator)
+    return None if top is None or bottom is None else Fraction(top, bottom)
+
+
+def number(tree: ast.AST, values: Mapping[str, object]):
+    """The value of a checked expression whose names all have values in ``values``.
+
+    Exact (a :class:`~fractions.Fraction`) while the arithmetic stays rational (integer
+    powers, roots of perfect powers, ``Abs``, ``sign``); otherwise an mpmath number with
+    :data:`_NUMBER_DIGITS` digits. Imports no sympy (mpmath only when a value is irrational).
+    Raises :class:`Undecided` when the value cannot be settled and :class:`NotReal` when it
+    is certainly not a finite real number.
+    """
+    numeric = False  # first pass: exact rationals only; mpmath is imported when a value is irrational
+
+    def mp():
+        if not numeric:
+            raise _Irrational
+        import mpmath
+
+        return mpmath
+
+    def inexact(x):
+        if isinstance(x, Fraction):
+            return mp().mpf(x.numerator) / x.denominator
+        return x
+
+    def settle(x):
+        mpmath = mp()
+        if isinstance(x, mpmath.mpc):
+            if abs(x.imag) > mpmath.mpf(10) ** (-_UNDECIDED_BELOW) * (1 + abs(x.real)):
+                raise NotReal("not a real number")
+            x = x.real
+        if not mpmath.isfinite(x):
+            raise NotReal("not finite")
+        if x and abs(mpmath.mag(x)) > _MAX_EXACT_BITS:
+            raise Undecided("too large or too small to settle")
+        return x
+
+    def big(x) -> bool:
+        return isinstance(x, Fraction) and max(x.numerator.bit_length(), x.denominator.bit_length()) > _MAX_EXACT_BITS
+
+    def power(base, exponent):
+        if isinstance(base, Fraction) and isinstance(exponent, Fraction):
+            if exponent.denominator == 1:
+                if base == 0 and exponent < 0:
+                    raise NotReal("division by zero")
+                if max(base.numerator.bit_length(), base.denominator.bit_length()) * abs(exponent.numerator) \
+                        <= _MAX_EXACT_BITS:
+                    return base ** int(exponent)
+            elif base >= 0:
+                root = _root(base, exponent.denominator)
+                if root is not None:
+                    return power(root, Fraction(exponent.numerator))
+        if isinstance(base, Fraction) and base < 0 and not (isinstance(exponent, Fraction)
+                                                           and exponent.denominator == 1):
+            raise NotReal("a negative number to a fractional power")
+        mpmath = mp()
+        if base and abs(mpmath.mag(inexact(base)) * inexact(exponent)) > _MAX_EXACT_BITS:
+            raise Undecided("too large or too small to settle")
+        if isinstance(exponent, Fraction) and exponent.denominator == 1:
+            if base == 0 and exponent < 0:
+                raise NotReal("division by zero")
+            return settle(inexact(base) ** int(exponent))
+        return settle(mpmath.power(inexact(base), inexact(exponent)))
+
+    def call(fname, x):
+        if fname == "Abs":
+            return abs(x)
+        if fname == "sign":
+            return Fraction((x > 0) - (x < 0)) if isinstance(x, Fraction) else mp().sign(x)
+        if fname == "sqrt":
+            return power(x, Fraction(1, 2))
+        if fname == "exp" and x == 0:
+            return Fraction(1)
+        if fname == "log" and x == 1:
+            return Fraction(0)
+        if fname in ("sin", "tan", "asin", "atan", "sinh", "tanh", "asinh", "atanh") and x == 0:
+            return Fraction(0)
+        if fname in ("cos", "sec", "cosh") and x == 0:
+            return Fraction(1)
+        mpmath = mp()
+        if fname in _GROWING and abs(x) > _MAX_ARGUMENT:
+            raise Undecided(f"{fname}() of a number this large is not settled")
+        fn = mpmath.lambertw if fname == "LambertW" else getattr(mpmath, fname)
+        return settle(fn(inexact(x)))
+
+    def build(node):
+        if isinstance(node, ast.Constant):
+            if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
+                raise Undecided(f"'{_token(node)}' is not a number")
+            return Fraction(repr(node.value)) if isinstance(node.value, float) else Fraction(node.value)
+        if isinstance(node, ast.Name):
+            if node.id == "pi":
+                return +mp().pi
+            if node.id in values:
+                return values[node.id]
+            raise Undecided(f"'{node.id}' has no value")
+        if isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
+            inner = build(node.operand)
+            return -inner if isinstance(node.op, ast.USub) else inner
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Pow):
+            return power(build(node.left), build(node.right))
+        if isinstance(node, ast.BinOp) and type(node.op) in _BINOPS:
+            family = _ADDITIVE if isinstance(node.op, _ADDITIVE) else _MULTIPLICATIVE
+            operands, ops = _chain(node, family)
+            value = build(operands[0])
+            for op, operand in zip(ops, operands[1:], strict=True):
+                other = build(operand)
+                if big(value) or big(other) or not (isinstance(value, Fraction) and isinstance(other, Fraction)):
+                    value, other = inexact(value), inexact(other)
+                if isinstance(op, ast.Add):
+                    value = value + other
+                elif isinstance(op, ast.Sub):
+                    value = value - other
+                elif isinstance(op, ast.Mult):
+                    value = value * other
+                elif other == 0:
+                    raise NotReal("division by zero")
+                else:
+                    value = value / other
+            return value
+        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id in MATH_FUNCTIONS \
+                and len(node.args) == 1:
+            return call(node.func.id, build(node.args[0]))
+        raise Undecided(f"'{_token(node)}' has no plain value")
+
+    try:
+        if all(isinstance(v, Fraction) for v in values.values()):
+            try:
+                return build(tree)
+            except _Irrational:
+                pass
+        numeric = True
+        import mpmath
+
+        with mpmath.workdps(_NUMBER_DIGITS):
+            return build(tree)
+    except Undecided:
+        raise
+    except (ArithmeticError, ValueError, TypeError, RecursionError) as exc:  # mpmath domain errors, overflow
+        raise Undecided(type(exc).__name__) from None
+
+
+class _Irrational(Exception):
+    """Internal: the exact pass met a value that is not rational."""
+
+
+def holds(left, op: str, right) -> bool | None:
+    """Whether ``left OP right`` holds for two values from :func:`number`; None when an
+    irrational value lies too close to the bound to be trusted either way."""
+    if isinstance(left, Fraction) and isinstance(right, Fraction):
+        difference = left - right
+    else:
+        import mpmath
+
+        with mpmath.workdps(_NUMBER_DIGITS):
+            l_, r_ = (mpmath.mpf(x.numerator) / x.denominator if isinstance(x, Fraction) else x
+                      for x in (left, right))
+            difference = l_ - r_
+            if abs(difference) <= mpmath.mpf(10) ** (-_UNDECIDED_BELOW) * (1 + abs(l_) + abs(r_)):
+                return None
+    return {"<": difference < 0, "<=": difference <= 0, ">": difference > 0, ">=": difference >= 0}[op]
 
 
 # --------------------------------------------------------------------------- sympy side

@@ -30,6 +30,7 @@ from gravicat.expr import (
     check_expression,
     check_expression_size,
     check_relation,
+    names_in,
 )
 
 FORMAT = "gravicat-metric/1"
@@ -305,6 +306,9 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         if "default" in spec:
             entry["default"] = v.expr(spec["default"], param_names, f"{field}.default")
         parameters[name] = entry
+    _check_defaults(v, parameters, param_names,
+                    {k: p["default"] for k, p in params_raw.items() if "default" in p},
+                    {k: p["range"] for k, p in params_raw.items() if "range" in p})
 
     charts_raw = v.table(raw["charts"], "charts")
     if not charts_raw:
@@ -349,6 +353,94 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         "flat-when": flat_when,
     }
     return MetricDocument(data, source)
+
+
+_ASSUMED = {"positive": (">", "positive"), "nonnegative": (">=", "non-negative"), "negative": ("<", "negative")}
+
+
+def _check_defaults(v: _V, parameters: dict[str, dict], names: Names, written: dict[str, Any],
+                    written_ranges: dict[str, Any]) -> None:
+    """Every ``default`` must be a finite real number inside its parameter's ``range`` and assumptions.
+
+    ``written``, ``written_ranges``: defaults and ranges as the file wrote them (for the message).
+    Defaults may refer to other parameters' defaults; a range relation is checked when every
+    parameter it names has a default. Values are exact rationals where possible, else 60-digit
+    numbers; a comparison too close to call in 60 digits is given the benefit of the doubt.
+    Needs no sympy (mpmath only for irrational values).
+    """
+    from fractions import Fraction
+
+    from gravicat.expr import NotReal, Undecided, holds, number
+
+    trees = {k: check_expression(p["default"], names, source=v.source, field=f"parameters.{k}.default")
+             for k, p in parameters.items() if "default" in p}
+    values: dict[str, Any] = {}
+    pending = dict(trees)
+    while pending:
+        progress = False
+        for name, tree in list(pending.items()):
+            try:
+                values[name] = number(tree, values)
+            except NotReal as exc:
+                if not (names_in(tree) - set(values) - RESERVED):
+                    text = str(written.get(name, parameters[name]["default"])).strip()
+                    v.fail(f"parameters.{name}.default", f"'{text}' is not a finite real number ({exc})")
+                continue
+            except Undecided:
+                continue
+            del pending[name]
+            progress = True
+        if not progress:
+            break  # a default naming a parameter without a (settled) default: nothing more to check
+    shown = {k: (str(x) if isinstance(x, Fraction) else _decimal(x)) for k, x in values.items()}
+
+    def describe(name):
+        text = str(written.get(name, parameters[name]["default"])).strip()
+        exact = text.replace(" ", "") == shown[name]
+        return f"default {name} = {text}" + ("" if exact else f" (= {shown[name]})")
+
+    for name, value in values.items():
+        p = parameters[name]
+        field = f"parameters.{name}.default"
+        for flag, (op, word) in _ASSUMED.items():
+            if flag in p["assume"] and holds(value, op, Fraction(0)) is False:
+                v.fail(field, f"{describe(name)} is not {word} (assume = {flag}); choose a default "
+                              "the parameter may take")
+        if "nonzero" in p["assume"] and isinstance(value, Fraction) and value == 0:
+            v.fail(field, f"{describe(name)} is zero (assume = nonzero); choose a default the parameter may take")
+        if "integer" in p["assume"] and isinstance(value, Fraction) and value.denominator != 1:
+            v.fail(field, f"{describe(name)} is not an integer (assume = integer); choose a default the "
+                          "parameter may take")
+    for owner, p in parameters.items():
+        if "range" not in p:
+            continue
+        for rel in check_relation(p["range"], names, source=v.source, field=f"parameters.{owner}.range"):
+            used = sorted((names_in(rel.left) | names_in(rel.right)) - RESERVED)
+            if not used or any(u not in values for u in used):
+                continue
+            try:
+                left, right = number(rel.left, values), number(rel.right, values)
+            except Undecided:
+                continue
+            if holds(left, rel.op, right) is not False:
+                continue
+            subject = owner if owner in used else used[0]
+            others = [u for u in used if u != subject]
+            detail = ", ".join(f"{o} = {shown[o]}" for o in others)
+            if rel.text() != p["range"]:
+                detail = f"{rel.text()} fails" + (f" with {detail}" if detail else "")
+            elif detail:
+                detail = f"fails with {detail}"
+            range_text = str(written_ranges.get(owner, p["range"])).strip()
+            v.fail(f"parameters.{subject}.default",
+                   f"{describe(subject)} is outside the range {range_text}"
+                   + (f" ({detail})" if detail else "") + "; choose a default inside the range")
+
+
+def _decimal(x) -> str:
+    import mpmath
+
+    return mpmath.nstr(x, 12)
 
 
 def _references(v: _V, value) -> list[dict[str, str]]:
@@ -409,6 +501,7 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
     names = Names(symbols=param_names.symbols | frozenset(coords), functions=functions,
                   coordinates=frozenset(coords))
     defines = {}
+    through: dict[str, str] = {}  # definition -> the declared function it uses
     for dname, text in v.table(craw.get("define", {}), f"{base}.define").items():
         v.ident(dname, f"{base}.define.{dname}", taken)
         if isinstance(text, bool) or not isinstance(text, (str, int, float)):
@@ -416,11 +509,17 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
         tree, bits = check_expression_size(text, names, source=v.source, field=f"{base}.define.{dname}")
         defines[dname] = canonical(tree)
         taken[dname] = "definition"
+        _note_function_use(through, dname, names_in(tree), functions)
         names = names.with_symbols([dname], {dname: bits} if bits is not None else None)
+    domain = []
+    for i, t in enumerate(v.str_list(craw.get("domain", []), f"{base}.domain")):
+        field = f"{base}.domain[{i}]"
+        domain.append(v.relation(t, names, field))
+        _refuse_function_in_domain(v.fail, field, t, check_relation(t, names, source=v.source, field=field),
+                                   functions, through)
     chart: dict[str, Any] = {
         "coordinates": coords,
-        "domain": [v.relation(t, names, f"{base}.domain[{i}]")
-                   for i, t in enumerate(v.str_list(craw.get("domain", []), f"{base}.domain"))],
+        "domain": domain,
         "functions": decls,
         "define": defines,
     }
@@ -499,6 +598,46 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
     return chart
 
 
+def _note_function_use(through: dict[str, str], dname: str, used: set[str],
+                       functions: dict[str, tuple[str, ...]]) -> None:
+    """Record in ``through`` that definition ``dname`` uses a declared function (directly or not)."""
+    for name in sorted(used):
+        if name in functions:
+            through[dname] = f"{name}({', '.join(functions[name])})"
+            return
+        if name in through:
+            through[dname] = through[name]
+            return
+
+
+def _refuse_function_in_domain(fail: Callable[[str, str], Any], field: str, text: str, relations,
+                               functions: dict[str, tuple[str, ...]], through: dict[str, str]) -> None:
+    """A domain inequality may restrict coordinates and parameters only.
+
+    Sample points of a chart draw the value of a declared function (and of its derivatives)
+    freely, with no inequality linking it to the coordinates, so ``r > b(r)`` or ``t > tB``
+    could not be honoured and a verifier would judge the metric where the file says it does
+    not hold. Refused, with what to write instead.
+    """
+    used: set[str] = set()
+    for rel in relations:
+        used |= names_in(rel.left) | names_in(rel.right)
+    direct = sorted(used & set(functions))
+    if direct:
+        fname = direct[0]
+        what = f"the declared function {fname}({', '.join(functions[fname])})"
+    else:
+        indirect = sorted(used & set(through))
+        if not indirect:
+            return
+        fname = through[indirect[0]].split("(")[0]
+        what = f"the definition '{indirect[0]}', which uses the declared function {through[indirect[0]]}"
+    fail(field, f"'{text}' involves {what}; a domain may restrict only coordinates and parameters (sample "
+                "points give a declared function any value, so this condition cannot be kept): write "
+                f"{fname} out under 'define' in coordinates and parameters instead of declaring it in "
+                "'functions', or state the condition in 'notes'")
+
+
 def _limit(v: _V, entry_id: str, lname: str, lraw, param_names: Names, charts: dict,
            chart_coords: dict[str, list[str]]) -> dict[str, Any]:
     base = f"limits.{lname}"
@@ -566,6 +705,7 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
         fdecl[m.group(1)] = tuple(a.strip() for a in m.group(2).split(","))
         functions[m.group(1)] = sympy.Function(m.group(1), real=True)(*(coords[a] for a in fdecl[m.group(1)]))
     names = Names(symbols=frozenset(env), functions=fdecl, coordinates=frozenset(coords))
+    through: dict[str, str] = {}
 
     def build(text: str, field: str, extra_names=()):
         tree = check_expression(text, names.with_symbols(extra_names), source=source, field=field)
@@ -577,6 +717,7 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
     for dname, text in c["define"].items():
         field = f"{base}.define.{dname}"
         tree, bits = check_expression_size(text, names, source=source, field=field)
+        _note_function_use(through, dname, names_in(tree), fdecl)
         env[dname] = to_sympy(tree, env, functions)
         if env[dname].has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
             raise InputError(source, field, f"'{text}' is not finite ({env[dname]})")
@@ -599,14 +740,19 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
                                      f"the matrix is not symmetric: '{c['metric'][i][j]}' differs from "
                                      f"metric[{j}][{i}] = '{c['metric'][j][i]}'")
 
-    def relations(texts, fields, nm):
+    def relations(texts, fields, nm, no_functions=False):
         out = []
         for text, field in zip(texts, fields, strict=True):
-            for rel in check_relation(text, nm, source=source, field=field):
-                out.append(relation_to_sympy(rel, env, functions))
+            rels = check_relation(text, nm, source=source, field=field)
+            if no_functions:  # a stored document is not validated again: keep the domain rule here too
+                _refuse_function_in_domain(fail, field, text, rels, fdecl, through)
+            out.extend(relation_to_sympy(rel, env, functions) for rel in rels)
         return tuple(out)
 
-    domain = relations(c["domain"], [f"{base}.domain[{i}]" for i in range(len(c["domain"]))], names)
+    def fail(field, problem):
+        raise InputError(source, field, problem)
+
+    domain = relations(c["domain"], [f"{base}.domain[{i}]" for i in range(len(c["domain"]))], names, True)
     pnames = Names(symbols=frozenset(params))
     ranged = [(k, p["range"]) for k, p in data["parameters"].items() if "range" in p]
     param_ranges = relations([r for _, r in ranged], [f"parameters.{k}.range" for k, _ in ranged], pnames)
