@@ -332,3 +332,18 @@ def test_fit_last_column_keeps_a_minimum_and_leaves_piped_rows_alone():
 
     assert max(map(len, tabulate(fitted, headers=["k", "detail"], tablefmt="simple").splitlines())) == 50
     assert len(fit_last_column(rows, ["k", "detail"], 5)[0][1]) == 24  # never narrower than 24
+
+
+def test_check_needing_an_unreadable_catalogue_is_a_one_line_error(cli, tmp_path):
+    # issue 13, item 8: the user's catalogue is part of the answer, so a broken one is reported
+    # (exit 2, one line) rather than silently giving a verdict `verify` would not give
+    path = tmp_path / "drift.toml"
+    path.write_text(LIMITED.replace("TARGET", "schwarzschild:schwarzschild"))
+    folder = tmp_path / "a-folder"
+    folder.mkdir()
+    r = cli("check", str(path), "--only", "limits", db=f"sqlite:///{folder}")
+    lines = [x for x in r.stderr.splitlines() if x.strip()]
+    assert r.exit_code == 2 and len(lines) == 1 and lines[0].startswith("Error: "), r.output
+    # a file whose limits name no other entry never opens the catalogue
+    r = cli("check", str(GOOD), "--only", "structure", db=f"sqlite:///{folder}")
+    assert r.exit_code == 0, r.output

@@ -114,6 +114,7 @@ def catalogue_targets(app_ctx: AppContext, doc) -> dict:
             rev = store.head(session, slug)
             if rev is not None:
                 found[slug] = MetricDocument(rev.document, f"catalogue:{slug}@{rev.hash[:12]}")
+    app_ctx.engine.dispose()  # no pooled connection is inherited by the charts' forked children
     return found
 
 
