@@ -474,7 +474,11 @@ class Equatorial:
             try:
                 disc = m[4] * m[4] - m[1] * m[7]
                 omega = (-m[4] + k * _mp_sqrt(disc)) / m[7]
-                out.update(disc=disc, Omega=omega, norm=m[0] + 2 * m[3] * omega + m[6] * omega * omega)
+                norm = m[0] + 2 * m[3] * omega + m[6] * omega * omega
+                out.update(disc=disc, Omega=omega, norm=norm)
+                if norm < 0:  # timelike: only dOmega/dr is undefined (B' + C' Omega = 0, e.g. flat space)
+                    ut = 1 / mpmath.sqrt(-norm)
+                    out.update(ut=ut, energy=-(m[0] + m[3] * omega) * ut, L=(m[3] + m[6] * omega) * ut)
             except ZeroDivisionError:
                 pass
             return out
@@ -543,6 +547,13 @@ class Equatorial:
             value = fn_mp(x)
             if not mpmath.isfinite(value) or abs(value) > mpmath.mpf(10) ** (-DPS // 3) * (abs(flo) + abs(fhi)):
                 return None  # a pole, not a root
+            # near a root |f| shrinks towards x, near a pole it grows: compare steps of 1e-15 and 2e-15 (relative)
+            step = abs(x) * mpmath.mpf(10) ** -15 if x != 0 else mpmath.mpf(10) ** -15
+            for sign in (1, -1):
+                near, further = fn_mp(x + sign * step), fn_mp(x + 2 * sign * step)
+                if mpmath.isfinite(near) and mpmath.isfinite(further) and further != 0 and \
+                        abs(near) > 1.5 * abs(further):
+                    return None  # a pole, not a root
             return float(x)
 
     def _scan(self, fn_np, fn_mp, lo: float, hi: float) -> list[Root]:
@@ -805,8 +816,8 @@ class Equatorial:
 
         m = self.series_np(r)
         A, B, C = m[0], m[3], m[6]
-        D = B * B - A * C
         with np.errstate(all="ignore"):
+            D = B * B - A * C
             return (-B * L + np.sqrt(D * (L * L + C))) / C
 
     def barrier(self, radius: float, L: float) -> float:
@@ -824,15 +835,19 @@ class Equatorial:
         ok = np.isfinite(v)
         if not ok.any():
             return math.nan
-        k = int(np.nanargmax(np.where(ok, v, -np.inf)))
-        best = float(v[k])
+        w = np.where(ok, v, -np.inf)
+        best = float(np.max(w))
         if self.cosmological_horizon is None and self.domain_bounds[1] is None and not self.asymptotically_flat \
                 and ok[-1] and ok[-2] and v[-1] > v[-2]:
             return math.inf  # still rising far out: the potential grows without limit (anti-de Sitter)
-        if 0 < k < len(x) - 1:
-            res = minimize_scalar(lambda y: -float(self.potential_np(np.array([y]), L)[0]),
-                                  bounds=(float(x[k - 1]), float(x[k + 1])), method="bounded",
-                                  options={"xatol": 1e-13 * float(x[k])})
+        # every interior local maximum, refined (at a marginally bound orbit the inner maximum, at r itself, and
+        # the outer one are nearly equal, so the grid alone cannot tell which is higher)
+        peaks = np.nonzero((w[1:-1] >= w[:-2]) & (w[1:-1] >= w[2:]) & ok[1:-1])[0] + 1
+        for k in peaks:
+            with np.errstate(all="ignore"):
+                res = minimize_scalar(lambda y: -float(self.potential_np(np.array([y]), L)[0]),
+                                      bounds=(float(x[k - 1]), float(x[k + 1])), method="bounded",
+                                      options={"xatol": 1e-12 * float(x[k])})
             if np.isfinite(res.fun):
                 best = max(best, -float(res.fun))
         if self.asymptotically_flat:
@@ -961,6 +976,9 @@ class Equatorial:
             return {**out, "exists": False, "reason": "inside the outer horizon"}
         if hi is not None and radius >= hi:
             return {**out, "exists": False, "reason": f"beyond the cosmological horizon r = {hi:.10g}"}
+        lower, upper = self.domain_bounds
+        if (lower is not None and radius <= lower) or (upper is not None and radius >= upper):
+            return {**out, "exists": False, "reason": "outside the chart's domain"}
         with mpmath.workdps(DPS):
             o = self.orbit_mp(radius, direction)
             if not (mpmath.isfinite(o["disc"]) and o["disc"] >= 0 and mpmath.isfinite(o["Omega"])):
@@ -989,7 +1007,8 @@ class Equatorial:
         return {**out, "exists": True, "Omega": omega,
                 "u": {str(self.chart.time): ut, str(self.chart.azimuth): ut * omega},
                 "energy": vals["energy"], "angular_momentum": vals["L"],
-                "stable": vals["dE"] > 0, "bound": self._is_bound(float(radius), vals["energy"], vals["L"]),
+                "stable": (vals["dE"] > 0) if math.isfinite(vals["dE"]) else None,
+                "bound": self._is_bound(float(radius), vals["energy"], vals["L"]),
                 "clock_rate": 1 / ut / self.clock_reference[0],
                 "norm_residual": abs(norm_residual), "geodesic_residual": float(np.max(np.abs(accel)) * radius)}
 

@@ -8,8 +8,10 @@ beside each check) evaluated independently here with mpmath / sympy.
 from __future__ import annotations
 
 import json
+import math
 import sys
 from functools import cache
+from pathlib import Path
 
 import mpmath
 import pytest
@@ -495,3 +497,227 @@ def test_library_refuses_missing_parameters():
     _, _, eq = _chart("kerr")
     with pytest.raises(InputError, match="no value given"):
         eq.bind({"M": 1})
+
+
+# --------------------------------------------------------------------------- a cosmological constant
+
+SDS = str(BUNDLED["schwarzschild-de-sitter"])
+KOTTLER = str(Path(__file__).parent / "data" / "orbits-kottler-any-lambda.toml")
+TANGHERLINI = str(Path(__file__).parent / "data" / "orbits-tangherlini-5d.toml")
+
+
+def _kottler(settings: tuple[str, ...]) -> orbits.Equatorial:
+    doc = load_file(KOTTLER)
+    spec = build_chart(doc, None)
+    return orbits.EquatorialChart(spec, doc.chart_names).bind(orbits.resolve_parameters(doc, spec, settings))
+
+
+def _marginally_stable_lambda(r, M=1):
+    # Z. Stuchlik and S. Hledik, Some properties of the Schwarzschild-de Sitter and Schwarzschild-anti-de Sitter
+    # spacetimes, Phys. Rev. D 60 (1999) 044006: the marginally stable circular orbits (inner ISCO and outer
+    # OSCO) satisfy Lambda = 3 M (r - 6M) / (r^3 (4 r - 15 M)) (form recalled from memory; it is also dL/dr = 0
+    # for L^2 = r^2 (M/r - Lambda r^2/3)/(1 - 3M/r), checked in test_orbits_consistency.py)
+    return 3 * M * (r - 6 * M) / (r**3 * (4 * r - 15 * M))
+
+
+def test_schwarzschild_de_sitter_static_region_stuchlik_hledik():
+    # Stuchlik & Hledik, Phys. Rev. D 60 (1999) 044006, for Lambda = 1e-4, M = 1: photon orbit 3M (independent
+    # of Lambda), ISCO 6.0691260197 (the value quoted in the issue from that paper); horizons are the positive
+    # roots of 1 - 2M/r - Lambda r^2/3, in closed form (trigonometric solution of the cubic, as in the entry's
+    # notes): r_c = (2/sqrt(L)) cos(acos(-3M sqrt(L))/3), r_b = (2/sqrt(L)) cos(acos(-3M sqrt(L))/3 - 2pi/3);
+    # static radius (3M/Lambda)^(1/3) (same paper).
+    lam = mpmath.mpf("1e-4")
+    m = model("schwarzschild-de-sitter", ("M=1", "Lambda=1/10000"))
+    ac = mpmath.acos(-3 * mpmath.sqrt(lam)) / 3
+    rc, rb = 2 / mpmath.sqrt(lam) * mpmath.cos(ac), 2 / mpmath.sqrt(lam) * mpmath.cos(ac - 2 * mpmath.pi / 3)
+    assert [q.radius for q in m.horizons.roots] == pytest.approx([float(rb), float(rc)], rel=1e-13)
+    assert m.region == pytest.approx((float(rb), float(rc)), rel=1e-13)
+    assert m.cosmological_horizon == pytest.approx(float(rc), rel=1e-13)
+    assert m.static_range == pytest.approx((float(rb), float(rc)), rel=1e-13)
+    assert m.static_radius == pytest.approx(float(mpmath.cbrt(3 / lam)), rel=1e-12)
+    for d in orbits.DIRECTIONS:
+        assert m.landmarks["photon_orbits"][d] == pytest.approx(3.0, abs=1e-10)
+        assert m.landmarks["isco"][d] == pytest.approx(6.0691260197, abs=1e-9)
+        osco = m.landmarks["osco"][d]
+        assert osco is not None and 6.07 < osco < m.static_radius
+        assert float(_marginally_stable_lambda(mpmath.mpf(osco))) == pytest.approx(1e-4, rel=1e-9)
+        assert float(_marginally_stable_lambda(mpmath.mpf(m.landmarks["isco"][d]))) == pytest.approx(1e-4, rel=1e-9)
+
+
+@pytest.mark.parametrize("x", [4.0, 10.0, 25.0])
+def test_schwarzschild_de_sitter_circular_orbits_and_clocks(x):
+    # Stuchlik & Hledik 1999 (recalled from memory): Omega^2 = M/r^3 - Lambda/3,
+    # E = (1 - 2M/r - Lambda r^2/3)/sqrt(1 - 3M/r), L^2 = r^2 (M/r - Lambda r^2/3)/(1 - 3M/r).
+    # Clocks: there is no static clock at infinity; rates are against the static observer at the static radius,
+    # so a static clock at r runs at sqrt(f(r)/f(r_s)) of it.
+    lam = mpmath.mpf("1e-4")
+    m = model("schwarzschild-de-sitter", ("M=1", "Lambda=1/10000"))
+    r = mpmath.mpf(x)
+    f = 1 - 2 / r - lam * r**2 / 3
+    omega = mpmath.sqrt(1 / r**3 - lam / 3)
+    energy = f / mpmath.sqrt(1 - 3 / r)
+    ang = mpmath.sqrt(r**2 * (1 / r - lam * r**2 / 3) / (1 - 3 / r))
+    for d, sign in (("prograde", 1), ("retrograde", -1)):
+        c = m.circular(x, d)
+        assert c["exists"], c
+        assert c["Omega"] == pytest.approx(sign * float(omega), rel=1e-13)
+        assert c["energy"] == pytest.approx(float(energy), rel=1e-13)
+        assert c["angular_momentum"] == pytest.approx(sign * float(ang), rel=1e-13)
+        assert c["stable"] is (6.0691260197 < x < m.landmarks["osco"][d])
+        # bound: E below the outward barrier at the same L. At r = 4 (inside the marginally bound radius) and at
+        # r = 25 (an unstable orbit beyond the OSCO: outward the potential only falls towards the cosmological
+        # horizon) a nudge outward escapes; r = 10 is stable and bound although E < 1 is not the criterion.
+        assert c["bound"] is (m.landmarks["marginally_bound"][d] < x < m.landmarks["osco"][d])
+    rs = m.static_radius
+    fs = 1 - 2 / mpmath.mpf(rs) - lam * mpmath.mpf(rs) ** 2 / 3
+    assert m.static_observer(x)["clock_rate"] == pytest.approx(float(mpmath.sqrt(f / fs)), rel=1e-12)
+    assert m.static_observer(rs)["clock_rate"] == pytest.approx(1.0, rel=1e-14)
+    assert "static radius" in m.clock_reference[1] and "no static clock at infinity" in m.clock_reference[1]
+
+
+def test_schwarzschild_de_sitter_outside_the_static_region():
+    m = model("schwarzschild-de-sitter", ("M=1", "Lambda=1/10000"))
+    beyond = m.circular(200.0, "prograde")
+    assert not beyond["exists"] and "beyond the cosmological horizon" in beyond["reason"]
+    assert not m.static_observer(200.0)["exists"]
+    inside = m.circular(1.5, "prograde")
+    assert not inside["exists"] and "inside the outer horizon" in inside["reason"]
+    # beyond the static radius Omega^2 = M/r^3 - Lambda/3 < 0: no circular orbit (Stuchlik & Hledik 1999)
+    assert not m.circular(40.0, "prograde")["exists"]
+    assert m.static_observer(40.0)["exists"]
+
+
+def test_marginally_bound_orbit_with_a_cosmological_constant():
+    # Definition (ours, in the spirit of Stuchlik & Hledik 1999): a circular orbit is bound when its energy lies
+    # below the outer maximum of the effective potential at its angular momentum; that maximum is the outer
+    # unstable circular orbit with the same L, between the OSCO and the static radius. So at the marginally
+    # bound radius r_mb, E(r_mb) = E(r_out) with L(r_out) = L(r_mb), found here independently from the closed
+    # forms for E and L (previous test) with mpmath.
+    lam = mpmath.mpf("1e-4")
+    m = model("schwarzschild-de-sitter", ("M=1", "Lambda=1/10000"))
+
+    def E(r):
+        return (1 - 2 / r - lam * r**2 / 3) / mpmath.sqrt(1 - 3 / r)
+
+    def L(r):
+        return mpmath.sqrt(r**2 * (1 / r - lam * r**2 / 3) / (1 - 3 / r))
+
+    rmb = mpmath.mpf(m.landmarks["marginally_bound"]["prograde"])
+    osco, rs = m.landmarks["osco"]["prograde"], m.static_radius
+    rout = mpmath.findroot(lambda r: L(r) - L(rmb), (mpmath.mpf(osco) * 1.0001, mpmath.mpf(rs) * 0.9999),
+                           solver="anderson")
+    assert float(E(rmb)) == pytest.approx(float(E(rout)), rel=1e-9)
+    assert float(E(rmb)) < 1  # the barrier lies below 1: E < 1 would have been the wrong test
+    assert m.landmarks["marginally_bound"]["retrograde"] == pytest.approx(float(rmb), rel=1e-12)
+
+
+@pytest.mark.parametrize("entry, settings", [
+    ("kerr-de-sitter", ("M=1", "a=0", "Lambda=1/10000")),
+    ("reissner-nordstrom-de-sitter", ("M=1", "Q=0", "Lambda=1/10000")),
+])
+def test_other_de_sitter_entries_reduce_to_schwarzschild_de_sitter(entry, settings):
+    # a = 0 (Kerr-de Sitter) and Q = 0 (Reissner-Nordstrom-de Sitter) are Schwarzschild-de Sitter: the same
+    # Stuchlik & Hledik 1999 landmarks.
+    try:
+        m = model(entry, settings)
+    except InputError as exc:  # the entry's range excludes the limit itself: take it close by
+        pytest.skip(str(exc))
+    for d in orbits.DIRECTIONS:
+        assert m.landmarks["photon_orbits"][d] == pytest.approx(3.0, abs=1e-9)
+        assert m.landmarks["isco"][d] == pytest.approx(6.0691260197, abs=1e-8)
+    assert m.static_radius == pytest.approx(float(mpmath.cbrt(30000)), rel=1e-12)
+    assert m.circular(10.0, "prograde")["Omega"] == pytest.approx(math.sqrt(1e-3 - 1e-4 / 3), rel=1e-12)
+
+
+def test_kerr_de_sitter_static_radius_and_prograde_isco():
+    # Z. Stuchlik and P. Slany, Equatorial circular orbits in the Kerr-de Sitter spacetimes, Phys. Rev. D 69 (2004)
+    # 064001: the static radius on the equator is (3M/Lambda)^(1/3), independent of a (recalled from memory; it
+    # follows from d g_tt/dr = 0 with g_tt = -(1 - 2M/r - Lambda (r^2 + a^2)/3)/Xi^2 on the equator); prograde
+    # orbits are tighter than retrograde ones.
+    m = model("kerr-de-sitter", ("M=1", "a=1/2", "Lambda=1/10000"))
+    assert m.cosmological_horizon is not None and len(m.horizons.roots) == 3
+    assert m.static_radius == pytest.approx(float(mpmath.cbrt(30000)), rel=1e-12)
+    marks = m.landmarks
+    assert marks["isco"]["prograde"] < 6.0691260197 < marks["isco"]["retrograde"]
+    assert marks["photon_orbits"]["prograde"] < 3 < marks["photon_orbits"]["retrograde"]
+    assert marks["osco"]["prograde"] is not None and marks["osco"]["retrograde"] is not None
+    assert m.circular(10.0, "prograde")["exists"] and m.circular(10.0, "prograde")["bound"] is True
+
+
+def test_reissner_nordstrom_de_sitter_photon_orbit():
+    # The photon orbit of f = 1 - 2M/r + Q^2/r^2 - Lambda r^2/3 solves d(f/r^2)/dr = 0, where the Lambda term drops
+    # out: r = (3M + sqrt(9M^2 - 8Q^2))/2 as for Reissner-Nordstrom (Chandrasekhar, The Mathematical Theory of
+    # Black Holes, 1983, section 40; recalled from memory). The region is bounded by r_+ and the cosmological
+    # horizon, and the inner horizon r_- is not taken as the edge.
+    m = model("reissner-nordstrom-de-sitter", ("M=1", "Q=1/2", "Lambda=1/10000"))
+    roots = [q.radius for q in m.horizons.roots]
+    assert len(roots) == 3 and m.region == pytest.approx((roots[1], roots[2]), rel=1e-14)
+    for d in orbits.DIRECTIONS:
+        assert m.landmarks["photon_orbits"][d] == pytest.approx((3 + math.sqrt(9 - 2)) / 2, abs=1e-10)
+
+
+def test_lambda_zero_and_negative():
+    # Lambda = 0: Schwarzschild, photon orbit 3M, marginally bound 4M, ISCO 6M (Carroll 2004 sections 5.4-5.6;
+    # BPT 1972 eq. 2.19 at a = 0); asymptotically flat, clocks against a static clock far away.
+    flat = _kottler(("M=1", "Lambda=0"))
+    assert flat.asymptotically_flat and flat.cosmological_horizon is None
+    assert flat.landmarks["photon_orbits"]["prograde"] == pytest.approx(3.0, abs=1e-10)
+    assert flat.landmarks["marginally_bound"]["prograde"] == pytest.approx(4.0, abs=1e-10)
+    assert flat.landmarks["isco"]["prograde"] == pytest.approx(6.0, abs=1e-10)
+    assert flat.clock_reference == (1.0, "a static clock far away")
+    # Lambda < 0 (Schwarzschild-anti-de Sitter): one horizon, no cosmological horizon, photon orbit 3M, the ISCO
+    # on the same marginal-stability curve (Stuchlik & Hledik 1999, see _marginally_stable_lambda), and every
+    # circular orbit bound (the potential grows without limit outward), so no marginally bound orbit.
+    ads = _kottler(("M=1", "Lambda=-1/10000"))
+    assert len(ads.horizons.roots) == 1 and ads.cosmological_horizon is None and not ads.asymptotically_flat
+    assert ads.static_range[1] is None and ads.static_radius is None
+    isco = ads.landmarks["isco"]["prograde"]
+    assert ads.landmarks["photon_orbits"]["prograde"] == pytest.approx(3.0, abs=1e-10)
+    assert 5.9 < isco < 6 and float(_marginally_stable_lambda(mpmath.mpf(isco))) == pytest.approx(-1e-4, rel=1e-9)
+    assert ads.landmarks["marginally_bound"]["prograde"] is None
+    assert any("every circular orbit is bound" in n for n in ads.notes)
+    assert ads.circular(4.0, "prograde")["bound"] is True  # unstable, E > 1, and still bound
+    assert ads.circular(4.0, "prograde")["energy"] > 1
+    assert "coordinate time" in ads.clock_reference[1]
+
+
+def test_cli_schwarzschild_de_sitter_text_and_json(cli):
+    result = cli("orbits", SDS, "--set", "M=1", "--set", "Lambda=1/10000", "--radius", "10", "--json")
+    assert result.exit_code == 0, result.stderr
+    rep = json.loads(result.stdout)
+    assert rep["isco"]["prograde"] == pytest.approx(6.0691260197, abs=1e-9)
+    assert rep["static_radius"] == pytest.approx(30000 ** (1 / 3), rel=1e-12)
+    assert rep["cosmological_horizon"] == pytest.approx(172.196284589, rel=1e-11)
+    assert rep["osco"]["prograde"] is not None
+    assert all(c["exists"] for c in rep["circular"])
+    assert rep["circular"][0]["Omega"] == pytest.approx(math.sqrt(1e-3 - 1e-4 / 3), rel=1e-12)
+    text = cli("orbits", SDS, "--set", "M=1", "--set", "Lambda=1/10000", "--radius", "10")
+    assert text.exit_code == 0
+    assert "static observers exist for 2.00026677339 < r < 172.196284589" in text.stdout
+    assert "outermost stable orbit" in text.stdout and "static radius" in text.stdout
+    assert "inside the outer horizon" not in text.stdout
+
+
+# --------------------------------------------------------------------------- several Killing angles
+
+
+def test_five_dimensional_chart_with_two_azimuths(cli):
+    # Tangherlini (1963), f = 1 - mu/r^2 in five dimensions: horizon sqrt(mu); circular orbits have
+    # Omega^2 = f'/(2r) = mu/r^4, the photon orbit is at r^2 = 2 mu (d(f/r^2)/dr = 0), and there is no stable
+    # circular orbit (derived here from the metric; the absence of stable orbits for D > 4 is recalled from
+    # memory).
+    result = cli("orbits", TANGHERLINI, "--set", "mu=2", "--radius", "3", "--json")
+    assert result.exit_code == 0, result.stderr
+    rep = json.loads(result.stdout)
+    assert rep["coordinates"]["azimuthal"] == "phi"
+    assert rep["horizons"]["radii"] == pytest.approx([math.sqrt(2)], rel=1e-14)
+    assert rep["photon_orbits"]["prograde"] == pytest.approx(2.0, abs=1e-10)
+    assert rep["isco"] == {"prograde": None, "retrograde": None}
+    assert rep["circular"][0]["Omega"] == pytest.approx(math.sqrt(2 / 81), rel=1e-13)
+    assert any("along phi only" in n and "psi" in n for n in rep["notes"])
+    same = cli("orbits", TANGHERLINI, "--set", "mu=2", "--azimuth", "phi", "--json")
+    assert json.loads(same.stdout)["photon_orbits"] == rep["photon_orbits"]
+    axis = cli("orbits", TANGHERLINI, "--azimuth", "psi")
+    assert axis.exit_code == 2 and "psi circle has zero size on the equator" in one_error_line(axis)
+    wrong = cli("orbits", TANGHERLINI, "--azimuth", "r")
+    assert wrong.exit_code == 2 and "--azimuth: r: not an azimuth" in one_error_line(wrong)
