@@ -515,14 +515,16 @@ class Worker:
     def execute(self, claim: Claim) -> dict[int, list[CheckResult]]:
         """Run the claimed verifiers on the chart (one shared Geometry); results by job id."""
         from gravicat.metricfile import MetricDocument
-        from gravicat.verify import check_chart, make_resolver
+        from gravicat.verify import BundledDocuments, check_chart, make_resolver
 
         doc = MetricDocument(claim.document, f"catalogue:{claim.slug}@{claim.hash[:12]}")
         by_name = {job.verifier: job for job in claim.jobs}
         out: dict[int, list[CheckResult]] = {job.id: [] for job in claim.jobs}
         try:
+            # targets: the document itself, the user's catalogue, then the bundled catalogue (as check does)
+            targets = BundledDocuments([doc], _CatalogueDocs(self.engine, doc))
             report = check_chart(doc, claim.chart, [self.verifiers[job.verifier] for job in claim.jobs],
-                                 resolve=make_resolver(_CatalogueDocs(self.engine, doc)), budget=claim.budget)
+                                 resolve=make_resolver(targets), budget=claim.budget)
         except Exception as exc:  # the chart itself could not be prepared: every job of it crashed
             message = f"the chart could not be prepared: {_message(exc)}"
             for job in claim.jobs:

@@ -163,7 +163,7 @@ def find_entries(session: Session, query: Query) -> Page:
     if query.status is not None and ids:
         wanted = "pass" if query.status == "verified" else query.status
         candidates = select(Revision.id).join(Entry, Revision.entry_id == Entry.id).where(where)
-        statuses = _status_of(session, CheckRecord.revision_id.in_(candidates))
+        statuses = _status_of(session, Revision.id.in_(candidates))
         ids = [i for i in ids if statuses.get(i, "unverified") == wanted]
     total = len(ids)
     end = None if query.limit is None else query.offset + query.limit
@@ -182,17 +182,26 @@ def overall_status(session: Session, revision_ids: list[int]) -> dict[int, str]:
     """Overall status per revision (worst of the newest result per chart and check); absent = unverified."""
     if not revision_ids:
         return {}
-    return _status_of(session, CheckRecord.revision_id.in_(list(revision_ids)))
+    return _status_of(session, Revision.id.in_(list(revision_ids)))
 
 
 def _status_of(session: Session, which) -> dict[int, str]:
-    """Overall status of the revisions selected by the condition ``which`` on check_result rows."""
-    newest = (select(func.max(CheckRecord.id)).where(which)
-              .group_by(CheckRecord.revision_id, CheckRecord.chart, CheckRecord.check))
-    rows = session.execute(select(CheckRecord.revision_id, func.max(_severity()))
-                           .where(CheckRecord.id.in_(newest)).group_by(CheckRecord.revision_id))
+    """Overall status of the revisions selected by the condition ``which`` on revision rows.
+
+    Results belong to content: every revision with the same content hash shares them (a reverted
+    revision is as verified as the identical content was), as in ``store.status_by_revision``."""
+    hash_of = dict(session.execute(select(Revision.id, Revision.hash).where(which)).all())
+    if not hash_of:
+        return {}
+    same = Revision.hash.in_(set(hash_of.values()))
+    newest = (select(func.max(CheckRecord.id)).join(Revision, CheckRecord.revision_id == Revision.id).where(same)
+              .group_by(Revision.hash, CheckRecord.chart, CheckRecord.check))
+    rows = session.execute(select(Revision.hash, func.max(_severity()))
+                           .join(Revision, CheckRecord.revision_id == Revision.id)
+                           .where(CheckRecord.id.in_(newest)).group_by(Revision.hash))
     names = {n: s.value for s, n in SEVERITY.items()}
-    return {rid: names.get(sev, Status.ERROR.value) for rid, sev in rows}
+    by_hash = {digest: names.get(sev, Status.ERROR.value) for digest, sev in rows}
+    return {rid: by_hash[digest] for rid, digest in hash_of.items() if digest in by_hash}
 
 
 def _documents(session: Session, conds, patterns: list[str]) -> list[tuple[int, str, dict]]:

@@ -129,7 +129,7 @@ def _missing(spec, claim):
 
 class FieldEquationsCheck:
     name = "field-equations"
-    version = "1"
+    version = "2"
 
     def check(self, geometry):
         from gravicat.plugins._common import from_outcome, result, skipped_if_degenerate

@@ -18,7 +18,7 @@ ATTRS = {"ricci-scalar": "ricci_scalar", "kretschmann": "kretschmann", "weyl-squ
 
 class InvariantsCheck:
     name = "invariants"
-    version = "1"
+    version = "2"
 
     def check(self, geometry):
         import sympy as sp

@@ -102,7 +102,7 @@ def _expand_flint(geometry, i, radial):
 
 class LimitsCheck:
     name = "limits"
-    version = "1"
+    version = "2"
 
     def check(self, geometry):
         spec = geometry.spec

@@ -28,7 +28,7 @@ from gravicat import hookimpl
 
 class SignatureCheck:
     name = "signature"
-    version = "1"
+    version = "2"
 
     def check(self, geometry):
         from gravicat.geometry import inertia

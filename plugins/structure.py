@@ -39,7 +39,7 @@ def _det_exact(rows):
 
 class StructureCheck:
     name = "structure"
-    version = "1"
+    version = "2"
 
     def check(self, geometry):
         import sympy as sp

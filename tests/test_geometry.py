@@ -414,8 +414,9 @@ def test_budget_exhausted_is_inconclusive_never_pass():
 
 
 def test_fallback_path_is_recorded():
-    f = 1 - 2 * M / sp.Abs(r)  # Abs is not on the fast path
-    spec = chart((t, r, th, ph), sph(-f, 1 / f), (M,), domain=(r > 2 * M, th > 0, th < sp.pi), ranges=(M > 0,))
+    # Abs(r) is settled by a domain r > 2M (fast path), not by r**2 > 4 M**2, which allows either sign
+    f = 1 - 2 * M / sp.Abs(r)
+    spec = chart((t, r, th, ph), sph(-f, 1 / f), (M,), domain=(r**2 > 4 * M**2, th > 0, th < sp.pi), ranges=(M > 0,))
     geo = Geometry(spec, budget=1.0)
     assert geo.path == "sympy" and "Abs" in geo.fallback_reason
     out = geo.verify(_vacuum)

@@ -138,6 +138,10 @@ def test_revert_creates_a_new_revision_and_reuses_the_results_of_its_content(thr
     assert exported.exit_code == 0, exported.output
     assert "status:    pass" in exported.stdout[:2000]
     assert json.loads(exported_json(cli))["checks"] == before[1]["checks"]
+    # list and find --status agree with show: the reverted revision is verified, not "unverified"
+    listed = {e["id"]: e for e in json.loads(cli("list", "--json").stdout)}
+    assert listed["halcyon-exterior"]["status"] == "pass", listed["halcyon-exterior"]
+    assert "halcyon-exterior" in cli("list", "--status", "verified").stdout
     verified = json.loads(cli("verify", "halcyon-exterior", "--json").stdout)["entries"][0]
     assert verified["computed"] == 0 and verified["status"] == "pass"
     # recomputing stores new rows against revision 4; they are the results of that content
