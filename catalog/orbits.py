@@ -843,6 +843,10 @@ class Equatorial:
         # every interior local maximum, refined (at a marginally bound orbit the inner maximum, at r itself, and
         # the outer one are nearly equal, so the grid alone cannot tell which is higher)
         peaks = np.nonzero((w[1:-1] >= w[:-2]) & (w[1:-1] >= w[2:]) & ok[1:-1])[0] + 1
+        # rounding noise on a plateau (a potential constant in r, as in the Einstein static universe) makes
+        # many grid 'peaks' of one value: refine one of each value (12 significant digits)
+        seen: set[str] = set()
+        peaks = [k for k in peaks if f"{w[k]:.12g}" not in seen and not seen.add(f"{w[k]:.12g}")]
         for k in peaks:
             with np.errstate(all="ignore"):
                 res = minimize_scalar(lambda y: -float(self.potential_np(np.array([y]), L)[0]),
