@@ -2,7 +2,7 @@
 
 A verifier is any object with ``name`` (str), ``version`` (str) and
 ``check(subject) -> list[CheckResult]``, contributed through the
-``register_verifiers`` hook. ``subject`` is a :class:`gravicat.geometry.Geometry`
+``register_verifiers`` hook. ``subject`` is a :class:`gravicat.engine.geometry.Geometry`
 (a prepared chart: sympy metric, inverse, derivatives and lazily cached
 curvature, shared by every verifier of one run). The core runs verifiers,
 isolates their crashes, times them and records provenance; a verifier only
@@ -95,7 +95,7 @@ class Exporter(Protocol):
     """An export target: ``name`` is the ``--to`` value; ``suffix`` the file ending.
 
     ``export(document, context)`` returns the text to write. ``document`` is a
-    :class:`gravicat.metricfile.MetricDocument`; ``context`` is a dict with at
+    :class:`gravicat.format.metricfile.MetricDocument`; ``context`` is a dict with at
     least ``revision`` (hash) and ``checks`` (list of stored result dicts).
     """
 

@@ -76,7 +76,7 @@ def load_settings(*, database: str | None = None, disable_plugins: list[str] | N
     if db is not None and not isinstance(db, str):
         raise InputError(str(config_path()), "database", "must be a string URL")
     if not db:
-        from gravicat.db import default_url
+        from gravicat.store.db import default_url
 
         db = default_url()
     blocked = pick("disable_plugins", disable_plugins) or ()

@@ -23,7 +23,7 @@ if TYPE_CHECKING:  # annotations only: importing stays cheap
     from pathlib import Path
 
     from gravicat.checks import Exporter, Verifier
-    from gravicat.metricfile import RawDocument
+    from gravicat.format.metricfile import RawDocument
 
 
 @hookspec
@@ -35,7 +35,7 @@ def register_verifiers() -> list[Verifier]:
     joined; verifier names must be unique across plugins.
 
     :return: objects with ``name``, ``version`` and ``check(subject)``, where
-        ``subject`` is a prepared :class:`gravicat.geometry.Geometry` and the
+        ``subject`` is a prepared :class:`gravicat.engine.geometry.Geometry` and the
         result a list of :class:`gravicat.CheckResult`.
     """
 
@@ -63,5 +63,5 @@ def read_metric_source(path: Path) -> RawDocument | None:
 
     :param path: the file to read.
     :return: the decoded document (a plain dict of TOML/JSON-like values)
-        wrapped in :class:`gravicat.metricfile.RawDocument`, or None.
+        wrapped in :class:`gravicat.format.metricfile.RawDocument`, or None.
     """

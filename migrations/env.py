@@ -1,14 +1,14 @@
 """Alembic environment.
 
 The application passes its own connection in ``config.attributes["connection"]``
-(see :func:`gravicat.db.upgrade`); developers running the ``alembic`` command
+(see :func:`gravicat.store.db.upgrade`); developers running the ``alembic`` command
 use the URL in alembic.ini or ``-x url=...``.
 """
 
 from alembic import context
 from sqlalchemy import create_engine
 
-from gravicat.models import Base
+from gravicat.store.models import Base
 
 config = context.config
 target_metadata = Base.metadata

@@ -6,7 +6,7 @@ from gravicat.checks import CheckResult, Method, Status
 
 
 def from_outcome(check: str, outcome, verifier, *, detail_prefix: str = "", data=None) -> CheckResult:
-    """A CheckResult from a :class:`gravicat.geometry.Outcome`."""
+    """A CheckResult from a :class:`gravicat.engine.geometry.Outcome`."""
     detail = outcome.detail if not detail_prefix else f"{detail_prefix}: {outcome.detail}"
     if outcome.status in ("pass", "fail", "inconclusive") and outcome.path:
         detail += f" [path: {outcome.path}]"
@@ -56,7 +56,7 @@ def signature_text(neg: int, zero: int, pos: int) -> str:
 
 def skipped_if_degenerate(geometry, check: str, verifier, needs: str) -> CheckResult | None:
     """A ``skipped`` result naming why, when the metric has no inverse on the domain
-    (:meth:`gravicat.geometry.Geometry.degeneracy`); None otherwise. ``needs`` says what the
+    (:meth:`gravicat.engine.geometry.Geometry.degeneracy`); None otherwise. ``needs`` says what the
     check would have computed from the inverse ("the Einstein tensor", ...)."""
     reason = geometry.degeneracy()
     if reason is None:
@@ -72,18 +72,18 @@ def skipped_if_degenerate(geometry, check: str, verifier, needs: str) -> CheckRe
 
 
 def point_matrix(pd):
-    """The metric at a sample point as exact rationals or balls, for :func:`gravicat.geometry.inertia`.
+    """The metric at a sample point as exact rationals or balls, for :func:`gravicat.engine.geometry.inertia`.
 
     On the sympy path the values are 60-digit floating-point numbers with no error bound; they
     become balls of radius ``10**-25`` times the largest entry (at least 1), the margin the
-    engine's own zero test uses for that path (:meth:`gravicat.geometry.PointData.zero_test`)."""
+    engine's own zero test uses for that path (:meth:`gravicat.engine.geometry.PointData.zero_test`)."""
     if pd.point is not None:
         return pd.g
     import flint
     import mpmath
 
-    from gravicat._ratfun import arb_precision
-    from gravicat._sampling import DIGITS
+    from gravicat.engine.ratfun import arb_precision
+    from gravicat.engine.sampling import DIGITS
 
     g = pd.g
     with mpmath.workdps(DIGITS + 10), arb_precision():
@@ -121,8 +121,8 @@ def zero_sets(geometry, points, limit: int = 3) -> list[tuple[str, str]]:
     import mpmath
     import sympy as sp
 
-    from gravicat._ratfun import BudgetExceeded, Unsupported
-    from gravicat._sampling import DIGITS, mp_function
+    from gravicat.engine.ratfun import BudgetExceeded, Unsupported
+    from gravicat.engine.sampling import DIGITS, mp_function
 
     if geometry.field is None or len(points) < 2:
         return []
@@ -187,7 +187,7 @@ def _crossing(f, syms, p1, p2, moved, sampler, steps: int = 80):
     and the parameter ranges and where ``f`` is small, or None."""
     import mpmath
 
-    from gravicat._sampling import DIGITS
+    from gravicat.engine.sampling import DIGITS
 
     with mpmath.workdps(DIGITS):
         a = [mpmath.mpf(p1.sample.numeric[s]) for s in syms]

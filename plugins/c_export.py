@@ -95,7 +95,7 @@ def _printer(names, prefix):
 
 
 def _statement(lhs: str, rhs: str, indent: str = "    ") -> list[str]:
-    from gravicat.codegen import wrap
+    from gravicat.export.codegen import wrap
 
     line = f"{indent}{lhs} = {rhs};"
     if len(line) <= WIDTH:
@@ -117,7 +117,7 @@ class CExporter:
     def export(self, document, context) -> str:
         import sympy
 
-        from gravicat.codegen import identifiers, numeric_parts, prepare, relation_margin, wrap
+        from gravicat.export.codegen import identifiers, numeric_parts, prepare, relation_margin, wrap
 
         prep = prepare(document, context, self, numeric=True)
         parts = numeric_parts(prep)

@@ -13,7 +13,7 @@ class JsonExporter:
     suffix = ".json"
 
     def export(self, document, context) -> str:
-        from gravicat.metricfile import EXPORT_FORMAT
+        from gravicat.format.metricfile import EXPORT_FORMAT
 
         payload = {
             "format": EXPORT_FORMAT,

@@ -59,7 +59,7 @@ class LatexExporter:
     suffix = ".tex"
 
     def export(self, document, context) -> str:
-        from gravicat.codegen import DEFAULT_BUDGET, christoffel_symbols, prepare
+        from gravicat.export.codegen import DEFAULT_BUDGET, christoffel_symbols, prepare
 
         prep = prepare(document, context, self, numeric=False)
         lay = prep.layered

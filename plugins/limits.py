@@ -88,7 +88,7 @@ def _expand_flint(geometry, i, radial):
     dn, dd = max(num), max(den)
     if dn > dd:
         return None  # g_tt grows: let the series say so
-    from gravicat._ratfun import Elem
+    from gravicat.engine.ratfun import Elem
 
     def E(p):
         return Elem(F, {0: p}, F.pone) if p is not None else F.zero
@@ -125,7 +125,7 @@ class LimitsCheck:
     def _limit(self, geometry, lim):
         import sympy as sp
 
-        from gravicat.geometry import prove_zero
+        from gravicat.engine.geometry import prove_zero
         from gravicat.plugins._common import from_outcome, resolver, result
 
         check = f"{self.name}:{lim.name}"
@@ -180,7 +180,7 @@ class LimitsCheck:
 
         import sympy as sp
 
-        from gravicat.geometry import Geometry
+        from gravicat.engine.geometry import Geometry
         from gravicat.plugins._common import from_outcome
 
         spec = geometry.spec
@@ -238,7 +238,7 @@ class LimitsCheck:
     def _asymptotic(self, geometry):
         import sympy as sp
 
-        from gravicat.geometry import _run_limited
+        from gravicat.engine.geometry import _run_limited
         from gravicat.plugins._common import result
 
         check = f"{self.name}:asymptotically-flat"

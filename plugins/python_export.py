@@ -62,7 +62,7 @@ def _printer(names):
 
 
 def _statement(lhs: str, rhs: str, indent: str = "    ") -> list[str]:
-    from gravicat.codegen import wrap
+    from gravicat.export.codegen import wrap
 
     line = f"{indent}{lhs} = {rhs}"
     if len(line) <= WIDTH:
@@ -82,7 +82,7 @@ class PythonExporter:
 
         import sympy
 
-        from gravicat.codegen import identifiers, numeric_parts, prepare, relation_margin, used_symbols, wrap
+        from gravicat.export.codegen import identifiers, numeric_parts, prepare, relation_margin, used_symbols, wrap
 
         prep = prepare(document, context, self, numeric=True)
         parts = numeric_parts(prep)
@@ -216,7 +216,7 @@ class PythonExporter:
 
 def _comments(lines: list[str]) -> list[str]:
     """``# `` comment lines, wrapped to WIDTH."""
-    from gravicat.codegen import wrap
+    from gravicat.export.codegen import wrap
 
     out = []
     for line in lines:

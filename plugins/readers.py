@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from gravicat import hookimpl
-from gravicat.metricfile import decode_builtin
+from gravicat.format.metricfile import decode_builtin
 
 
 @hookimpl(trylast=True)

@@ -2,7 +2,7 @@
 ((-,+,+,+) in four dimensions; the printed signature always has the chart's dimension), at
 sampled points of the domain.
 
-The inertia of g at a point is certain (:func:`gravicat.geometry.inertia`): the
+The inertia of g at a point is certain (:func:`gravicat.engine.geometry.inertia`): the
 characteristic polynomial of the symmetric matrix has only real roots, so
 Descartes' rule of signs counts its positive and negative eigenvalues, in exact
 rationals or, at points with values that are not rational (pi, exp, nested
@@ -11,7 +11,7 @@ roots...), in interval arithmetic when the signs of the coefficients decide it
 margin). A point where it is not decided is counted as undecided, never as a
 counterexample; the verdict ``fail`` needs a certain count.
 
-The sample points are generic (:mod:`gravicat._sampling`): a wrong signature at
+The sample points are generic (:mod:`gravicat.engine.sampling`): a wrong signature at
 one, with det g != 0 there, holds on a neighbourhood of it. A set of measure
 zero where det g vanishes inside the domain (an axis ``sin(theta) = 0``, a
 horizon) is not sampled; it is reported as a note, found from the factors of
@@ -31,7 +31,7 @@ class SignatureCheck:
     version = "2"
 
     def check(self, geometry):
-        from gravicat.geometry import inertia
+        from gravicat.engine.geometry import inertia
         from gravicat.plugins._common import point_matrix, result, signature_text, zero_sets_note
 
         n = geometry.n

@@ -25,7 +25,7 @@ class TransformsCheck:
     def _one(self, geometry, other, mapping):
         import sympy as sp
 
-        from gravicat.geometry import prove_zero
+        from gravicat.engine.geometry import prove_zero
         from gravicat.plugins._common import from_outcome, resolver, result
 
         spec = geometry.spec

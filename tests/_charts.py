@@ -1,7 +1,7 @@
 """Small ChartSpec builders for the engine and verifier tests (not collected: no test_ prefix).
 
 Each function returns a ChartSpec built directly from sympy objects, as
-:func:`gravicat.metricfile.build_chart` would. The metrics are standard
+:func:`gravicat.format.metricfile.build_chart` would. The metrics are standard
 textbook forms; the source of each is given beside it.
 """
 
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import sympy as sp
 
-from gravicat.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
+from gravicat.format.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
 
 t, r, th, ph = sp.symbols("t r theta phi", real=True)
 x, y, z, u, v = sp.symbols("x y z u v", real=True)

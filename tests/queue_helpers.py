@@ -45,7 +45,7 @@ BASE_DOCUMENT = {
 
 def document(slug: str, variant: str = ""):
     """A valid metric document with id ``slug``; a different ``variant`` gives different content."""
-    from gravicat.metricfile import validate
+    from gravicat.format.metricfile import validate
 
     data = dict(BASE_DOCUMENT, id=slug, notes=f"Used by the test suite only. {variant}".strip())
     return validate(data, f"test:{slug}")
@@ -139,11 +139,12 @@ def main(argv: list[str]) -> int:
 
     from sqlalchemy.orm import Session
 
-    from gravicat import queue, store
-    from gravicat.db import make_engine
+    from gravicat.api import queue
+    from gravicat.store import revisions as store
+    from gravicat.store.db import make_engine
 
     if args.cmd == "worker":
-        import gravicat.geometry  # noqa: F401  (the heavy imports happen before the common start)
+        import gravicat.engine.geometry  # noqa: F401  (the heavy imports happen before the common start)
 
         _wait_for(args.go)
         stats = queue.run_workers(args.url, 1, partial(plugin_manager, args.plugins), once=args.once,

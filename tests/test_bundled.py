@@ -7,8 +7,9 @@ import json
 import pytest
 from sqlalchemy.orm import Session
 
-from gravicat import db, store
-from gravicat.metricfile import build_chart, decode_toml, validate
+from gravicat.format.metricfile import build_chart, decode_toml, validate
+from gravicat.store import db
+from gravicat.store import revisions as store
 
 FILES = store.bundled_files()
 DOCS = {path.name: validate(decode_toml(path).data, str(path)) for path in FILES}
@@ -50,7 +51,7 @@ def test_each_entry_cites_and_builds(name):
 
 def test_round_trip_file_store_json_hash(db_url, tmp_path):
     """file -> store -> canonical JSON export -> the identical hash, for every bundled file."""
-    from gravicat.metricfile import decode_json
+    from gravicat.format.metricfile import decode_json
     from gravicat.plugins.json_export import JsonExporter
 
     engine = db.make_engine(db_url)

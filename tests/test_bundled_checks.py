@@ -18,7 +18,7 @@ from concurrent.futures import ProcessPoolExecutor
 
 import pytest
 
-from gravicat.verify import bundled_documents
+from gravicat.engine.runner import bundled_documents
 
 DOCS = bundled_documents()
 CHARTS = [(entry, chart) for entry, doc in sorted(DOCS.items()) for chart in doc.chart_names]
@@ -38,8 +38,8 @@ ALWAYS = ("structure", "signature", "field-equations", "invariants")
 
 def _verify(unit):
     entry, chart = unit
+    from gravicat.engine.runner import check_chart, make_resolver
     from gravicat.registry import make_plugin_manager, verifiers
-    from gravicat.verify import check_chart, make_resolver
 
     chosen = list(verifiers(make_plugin_manager()).values())
     report = check_chart(DOCS[entry], chart, chosen, resolve=make_resolver(DOCS))

@@ -1,4 +1,4 @@
-"""Charts checked in forked children (``check --jobs``), their CPU-time caps, and gravicat._fork.
+"""Charts checked in forked children (``check --jobs``), their CPU-time caps, and gravicat.engine.fork.
 
 The reference for "the same results" is gravicat's own in-process path (``check_document`` with
 ``jobs=None``, what ``check`` did before the charts ran in children): every chart of a few
@@ -17,12 +17,12 @@ from pathlib import Path
 import pytest
 
 from gravicat import CheckResult, Method, Status
-from gravicat import verify as V
-from gravicat._fork import run_forked, run_many
+from gravicat.engine import runner as V
+from gravicat.engine.fork import run_forked, run_many
+from gravicat.engine.runner import bundled_documents, chart_cap, check_document, make_resolver
 from gravicat.errors import InputError
-from gravicat.metricfile import load_file
+from gravicat.format.metricfile import load_file
 from gravicat.registry import make_plugin_manager, verifiers
-from gravicat.verify import bundled_documents, chart_cap, check_document, make_resolver
 
 BUNDLED = Path(__file__).resolve().parents[1] / "catalog" / "data" / "spacetimes"
 VERIFIERS = list(verifiers(make_plugin_manager()).values())
@@ -189,7 +189,7 @@ def test_jobs_must_be_positive(cli):
     assert r.exit_code == 2
 
 
-# --------------------------------------------------------------------------- gravicat._fork
+# --------------------------------------------------------------------------- gravicat.engine.fork
 
 
 def test_run_many_streams_items_in_input_order_and_rebuilds_errors():
@@ -263,7 +263,7 @@ def test_a_stopped_child_takes_its_grandchildren_with_it(tmp_path):
 
 
 def test_without_fork_the_charts_run_here_with_the_same_results(monkeypatch):
-    import gravicat._fork as F
+    import gravicat.engine.fork as F
 
     doc = load_file(BUNDLED / "minkowski.toml")
     here = check_document(doc, VERIFIERS, resolve=resolver_for(doc), jobs=None)

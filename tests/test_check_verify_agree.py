@@ -23,9 +23,9 @@ from pathlib import Path
 import pytest
 from typer.testing import CliRunner
 
-from gravicat import store
 from gravicat.cli import app
-from gravicat.metricfile import load_file
+from gravicat.format.metricfile import load_file
+from gravicat.store import revisions as store
 
 DATA = Path(__file__).parent / "data"
 BUNDLED = store.bundled_files()

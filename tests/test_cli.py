@@ -182,7 +182,7 @@ def test_help_for_every_command(cli):
 
 
 def test_init_loads_bundled_catalogue_idempotently(cli):
-    from gravicat.store import bundled_files
+    from gravicat.store.revisions import bundled_files
 
     first = cli("init")
     assert first.exit_code == 0, first.output

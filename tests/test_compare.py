@@ -14,8 +14,8 @@ import pytest
 import sympy as sp
 from typer.testing import CliRunner
 
-from gravicat import store
 from gravicat.cli import app
+from gravicat.store import revisions as store
 
 BUNDLED = {p.stem: p for p in store.bundled_files()}
 M, Q, Lam, r = sp.symbols("M Q Lambda r")

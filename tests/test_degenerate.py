@@ -20,8 +20,8 @@ import pytest
 import sympy as sp
 from conftest import DATA
 
-from gravicat.geometry import Geometry, inertia
-from gravicat.metricfile import build_chart, load_file
+from gravicat.engine.geometry import Geometry, inertia
+from gravicat.format.metricfile import build_chart, load_file
 from gravicat.plugins.signature import SignatureCheck
 
 EVERYWHERE = DATA / "degenerate-everywhere.toml"

@@ -18,7 +18,7 @@ import pytest
 import sympy
 
 from gravicat.errors import InputError
-from gravicat.metricfile import load_file
+from gravicat.format.metricfile import load_file
 
 SPACETIMES = Path(__file__).resolve().parent.parent / "catalog" / "data" / "spacetimes"
 

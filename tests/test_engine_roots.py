@@ -19,10 +19,10 @@ from pathlib import Path
 import pytest
 import sympy as sp
 
-from gravicat._ratfun import Field, Unsupported, settle_signs, unsettled
-from gravicat.geometry import Geometry
-from gravicat.metricfile import build_chart, load_file
-from gravicat.verify import bundled_documents, check_chart, make_resolver
+from gravicat.engine.geometry import Geometry
+from gravicat.engine.ratfun import Field, Unsupported, settle_signs, unsettled
+from gravicat.engine.runner import bundled_documents, check_chart, make_resolver
+from gravicat.format.metricfile import build_chart, load_file
 
 DATA = Path(__file__).parent / "data"
 LEMAITRE = DATA / "lemaitre-schwarzschild.toml"

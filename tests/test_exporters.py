@@ -1,6 +1,6 @@
 """Code exporters (python, c, latex): the generated code is run and compared with sympy.
 
-Reference for every numeric comparison: the chart's sympy metric (gravicat.metricfile.build_chart,
+Reference for every numeric comparison: the chart's sympy metric (gravicat.format.metricfile.build_chart,
 definitions substituted), differentiated independently with sympy.diff and evaluated with
 sympy.lambdify in mpmath arithmetic at random rational points of the chart's domain (parameters
 at the file's defaults); the reference inverse is mpmath's matrix inverse and the reference
@@ -27,11 +27,12 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from gravicat import CheckFailed, InputError, NotFound, UnsafeExpression, store
-from gravicat.metricfile import build_chart
+from gravicat import CheckFailed, InputError, NotFound, UnsafeExpression
+from gravicat.format.metricfile import build_chart
 from gravicat.plugins.c_export import CExporter, c_identifier
 from gravicat.plugins.latex_export import LatexExporter
 from gravicat.plugins.python_export import PythonExporter
+from gravicat.store import revisions as store
 
 DOCS = {d.id: d for d in store.iter_bundled_documents()}
 CASES = [(e, c) for e, d in sorted(DOCS.items()) for c in d.chart_names]
@@ -63,7 +64,7 @@ class Reference:
         import mpmath
         import sympy as sp
 
-        from gravicat.codegen import relation_margin
+        from gravicat.export.codegen import relation_margin
 
         doc = DOCS[entry]
         spec = build_chart(doc, chart)
@@ -445,7 +446,7 @@ def test_header_signature_has_the_chart_dimension(exporter, tmp_path):
     """Issue 13, item 13: the header printed (-,+,+,+) for every chart. A Lorentzian metric in n
     dimensions has one minus and n - 1 plus signs (Wald, General Relativity, 1984, sec. 2.2 states
     it for n = 4; the count in n dimensions is the definition); the signature verifier checks that."""
-    from gravicat.metricfile import load_file
+    from gravicat.format.metricfile import load_file
 
     assert "conventions: signature (-,+,+,+), G = c = 1" in exporter.export(
         DOCS["schwarzschild"], context("schwarzschild"))[:2000]
@@ -556,7 +557,7 @@ def test_latex_christoffel_symbols_of_schwarzschild():
     Gamma^a_bc of Schwarzschild (M/(r(r-2M)), M(r-2M)/r^3, ..., cot(theta))."""
     import sympy as sp
 
-    from gravicat.codegen import christoffel_symbols
+    from gravicat.export.codegen import christoffel_symbols
 
     spec = build_chart(DOCS["schwarzschild"], "schwarzschild")
     t, r, th, ph = spec.coords

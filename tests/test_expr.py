@@ -1,4 +1,4 @@
-"""Hostile input against the expression whitelist (gravicat.expr) and the metric-file validator.
+"""Hostile input against the expression whitelist (gravicat.format.expr) and the metric-file validator.
 
 Metric files are exchanged between groups, so every expression in them is untrusted text. Each
 code-injection payload below tries to create a sentinel file in the test's own temporary
@@ -12,7 +12,7 @@ source, the field and the offending token, and that the sentinel never appears:
 
 Valid expressions are compared with sympy objects built directly in this file: sympy, not
 gravicat, is the reference. Tests marked ``xfail(strict=True, reason="BUG: ...")`` document
-defects found in gravicat.expr / gravicat.metricfile; they start passing (and then fail as
+defects found in gravicat.format.expr / gravicat.format.metricfile; they start passing (and then fail as
 XPASS) once the defect is fixed, so the marker must be removed with the fix.
 """
 
@@ -30,7 +30,7 @@ from typer.testing import CliRunner
 
 from gravicat.cli import app
 from gravicat.errors import InputError, UnsafeExpression
-from gravicat.expr import (
+from gravicat.format.expr import (
     MAX_CHARS,
     MAX_CONSTANT_BITS,
     MAX_DEPTH,
@@ -44,7 +44,7 @@ from gravicat.expr import (
     relation_to_sympy,
     to_sympy,
 )
-from gravicat.metricfile import MetricDocument, build_chart, load_file, validate
+from gravicat.format.metricfile import MetricDocument, build_chart, load_file, validate
 
 SOURCE = "fen-group/toy-exterior.toml"
 FIELD = "charts.main.define.x"

@@ -1,4 +1,4 @@
-"""Property tests of the whitelist expression parser (gravicat.expr) against sympy (the reference).
+"""Property tests of the whitelist expression parser (gravicat.format.expr) against sympy (the reference).
 
 1. Random well-formed expressions from a small grammar are rendered as text, parsed by the
    whitelist and built by ``to_sympy``; the result must equal sympy's own construction of the same
@@ -14,7 +14,7 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from gravicat.errors import CatalogError
-from gravicat.expr import Names, check_expression, check_relation, to_sympy
+from gravicat.format.expr import Names, check_expression, check_relation, to_sympy
 
 SYMBOLS = {"x": sympy.Symbol("x", real=True), "y": sympy.Symbol("y", real=True),
            "M": sympy.Symbol("M", positive=True)}

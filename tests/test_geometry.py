@@ -1,4 +1,4 @@
-"""The verification engine (gravicat.geometry) against published results and sympy itself.
+"""The verification engine (gravicat.engine.geometry) against published results and sympy itself.
 
 Every expected value names its source. Values marked "recalled from memory"
 were not re-read from the publication while writing the test.
@@ -37,7 +37,7 @@ from _charts import (
     z,
 )
 
-from gravicat.geometry import Geometry, prove_zero
+from gravicat.engine.geometry import Geometry, prove_zero
 
 
 def exact_equal(geo, value, expected):
@@ -531,7 +531,7 @@ def test_lambertw_derivative_and_exp_rewrite():
 
 
 def test_lambertw_of_u_exp_u_only_where_the_branch_is_right():
-    from gravicat._ratfun import simplify_lambertw
+    from gravicat.engine.ratfun import simplify_lambertw
 
     u = r / (2 * M) - 1
     w = sp.LambertW(u * sp.exp(u))
@@ -620,7 +620,7 @@ def test_opaque_sum_that_is_not_harmonic_fails():
 
 
 def test_no_opaque_sums_in_rational_or_single_root_metrics():
-    from gravicat._ratfun import find_aliases
+    from gravicat.engine.ratfun import find_aliases
 
     assert not find_aliases(list(kerr().metric), kerr().coords)
     interior = -((3 * sp.sqrt(1 - 2 * M / 5) - sp.sqrt(1 - 2 * M * r**2 / 125)) ** 2) / 4
@@ -628,7 +628,7 @@ def test_no_opaque_sums_in_rational_or_single_root_metrics():
 
 
 def test_fallback_budget_is_cpu_time():
-    from gravicat.geometry import _run_limited
+    from gravicat.engine.geometry import _run_limited
 
     def spin():
         while True:
@@ -857,7 +857,7 @@ def test_two_nested_roots_are_two_reduced_algebraic_generators():
 def test_inertia_exact_interval_and_float_against_sympy():
     import flint
 
-    from gravicat.geometry import inertia
+    from gravicat.engine.geometry import inertia
 
     # a rational symmetric matrix with off-diagonal terms; reference: sympy's eigenvalues (reference library)
     rows = [[-3, 1, 0, 2], [1, 2, 0, 0], [0, 0, 5, 1], [2, 0, 1, 1]]

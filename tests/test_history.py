@@ -12,7 +12,7 @@ import json
 import pytest
 import sympy as sp
 
-from gravicat.history import field_diff, metric_changes, summarize
+from gravicat.api.history import field_diff, metric_changes, summarize
 
 M, r = sp.symbols("M r")
 
@@ -195,7 +195,7 @@ def test_field_diff_and_summary_on_documents():
 
 
 def test_a_rewritten_but_equal_metric_is_no_metric_change():
-    from gravicat.metricfile import validate
+    from gravicat.format.metricfile import validate
 
     def doc(line_element):
         return validate({"id": "halcyon-x", "title": "x", "field-equations": "vacuum",

@@ -5,7 +5,7 @@ exact field path of the fault (or ``SOURCE: problem`` when the file as a whole i
 content hash is checked against hashlib on the canonical JSON, and metric matrices against sympy
 matrices built directly in this file (sympy is the reference).
 
-Tests marked ``xfail(strict=True, reason="BUG: ...")`` document defects found in gravicat.metricfile;
+Tests marked ``xfail(strict=True, reason="BUG: ...")`` document defects found in gravicat.format.metricfile;
 once a defect is fixed the test passes, is reported as XPASS(strict) and its marker must go.
 """
 
@@ -20,7 +20,7 @@ import pytest
 import sympy
 
 from gravicat.errors import InputError, UnsafeExpression
-from gravicat.metricfile import (
+from gravicat.format.metricfile import (
     ASSUMPTIONS,
     EXPORT_FORMAT,
     FIELD_EQUATIONS,
@@ -853,7 +853,7 @@ def _line_elements():
 @pytest.mark.parametrize(("doc", "chart"), list(_line_elements()))
 def test_every_bundled_line_element_gives_sympys_hessian(doc, chart, monkeypatch):
     """g_ab = (1/2) d^2(ds^2)/d(dx^a)d(dx^b), with sympy.hessian as the reference (general-purpose library)."""
-    import gravicat.metricfile as mf
+    import gravicat.format.metricfile as mf
 
     seen = []
     real = mf._quadratic_form

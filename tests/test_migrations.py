@@ -12,9 +12,11 @@ from conftest import DATA
 from sqlalchemy import inspect, select
 from sqlalchemy.orm import Session
 
-from gravicat import SchemaOutdated, db, store
-from gravicat.metricfile import load_file
-from gravicat.models import CheckRecord, Revision
+from gravicat import SchemaOutdated
+from gravicat.format.metricfile import load_file
+from gravicat.store import db
+from gravicat.store import revisions as store
+from gravicat.store.models import CheckRecord, Revision
 
 
 def _config(connection=None) -> Config:

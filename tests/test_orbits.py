@@ -16,10 +16,10 @@ from pathlib import Path
 import mpmath
 import pytest
 
-from gravicat import orbits, units
 from gravicat.errors import InputError
-from gravicat.metricfile import build_chart, load_file
-from gravicat.store import bundled_files
+from gravicat.format.metricfile import build_chart, load_file
+from gravicat.physics import orbits, units
+from gravicat.store.revisions import bundled_files
 
 BUNDLED = {p.stem: p for p in bundled_files()}
 KERR, SCHW, RN = (str(BUNDLED[n]) for n in ("kerr", "schwarzschild", "reissner-nordstrom"))

@@ -30,11 +30,12 @@ import mpmath
 import numpy as np
 import pytest
 
-from gravicat import orbits, store
 from gravicat.errors import InputError
-from gravicat.metricfile import build_chart
+from gravicat.format.metricfile import build_chart
+from gravicat.physics import orbits
+from gravicat.physics.probe import exported_module, probe
 from gravicat.plugins.python_export import PythonExporter
-from gravicat.probe import exported_module, probe
+from gravicat.store import revisions as store
 
 DOCS = {d.id: d for d in store.iter_bundled_documents()}
 EXPORTER = PythonExporter()

@@ -1,7 +1,7 @@
 """The catalogue on PostgreSQL as on SQLite: the same CLI, migrations with data in place, and
 concurrent writers that never lose an update (see tests/pg.py for where the server comes from).
 
-Concurrency rule under test (catalog/store.py, add_document): the entry row is locked before
+Concurrency rule under test (catalog/store/revisions.py, add_document): the entry row is locked before
 its head is read, so two writers of one entry give two revisions in commit order, the second
 with the first as parent; two creators of one new entry: the second becomes revision 2 (or
 "unchanged"); a write that still collides is one clear Conflict error, with nothing written.
@@ -27,10 +27,12 @@ from queue_helpers import Tally, document
 from sqlalchemy import inspect, select
 from sqlalchemy.orm import Session
 
-from gravicat import db, queue, store
+from gravicat.api import queue
 from gravicat.errors import SchemaOutdated
-from gravicat.metricfile import load_file
-from gravicat.models import CheckRecord, Entry, Job, Revision
+from gravicat.format.metricfile import load_file
+from gravicat.store import db
+from gravicat.store import revisions as store
+from gravicat.store.models import CheckRecord, Entry, Job, Revision
 
 HELPER = Path(__file__).parent / "queue_helpers.py"
 FIXTURE = DATA / "rindler-demo.toml"

@@ -20,10 +20,11 @@ from pathlib import Path
 
 import pytest
 
-from gravicat import InputError, NotFound, store
+from gravicat import InputError, NotFound
+from gravicat.physics.probe import probe
 from gravicat.plugins import python_export
 from gravicat.plugins.python_export import PythonExporter
-from gravicat.probe import probe
+from gravicat.store import revisions as store
 
 DOCS = {d.id: d for d in store.iter_bundled_documents()}
 SPACETIMES = Path(store.bundled_files()[0]).parent

@@ -14,10 +14,11 @@ from pathlib import Path
 
 import pytest
 
-from gravicat import InputError, store
-from gravicat.metricfile import load_file
+from gravicat import InputError
+from gravicat.format.metricfile import load_file
+from gravicat.physics.probe import HORIZON_GROWTH, probe
 from gravicat.plugins.python_export import PythonExporter
-from gravicat.probe import HORIZON_GROWTH, probe
+from gravicat.store import revisions as store
 
 DOCS = {d.id: d for d in store.iter_bundled_documents()}
 SPACETIMES = Path(store.bundled_files()[0]).parent

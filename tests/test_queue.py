@@ -24,10 +24,12 @@ from queue_helpers import LOG_ENV, SLOW_ENV, Crasher, Tally, document, plugin_ma
 from sqlalchemy import func, select, update
 from sqlalchemy.orm import Session
 
-from gravicat import db, queue, store
+from gravicat.api import queue
 from gravicat.checks import CheckResult, Method, Status
-from gravicat.models import CheckRecord, Entry, Job, JobState, Revision
-from gravicat.verify import run_verifier
+from gravicat.engine.runner import run_verifier
+from gravicat.store import db
+from gravicat.store import revisions as store
+from gravicat.store.models import CheckRecord, Entry, Job, JobState, Revision
 
 HELPER = Path(__file__).parent / "queue_helpers.py"
 LEASE = 6  # seconds; heartbeats every LEASE / 4, so a busy machine does not lose leases by accident
@@ -177,8 +179,8 @@ def test_charts_measured_before_are_ordered_by_their_time(engine):
 
 
 def _geometry(rev):
-    from gravicat.geometry import Geometry
-    from gravicat.metricfile import build_chart
+    from gravicat.engine.geometry import Geometry
+    from gravicat.format.metricfile import build_chart
 
     return Geometry(build_chart(store.document_of(rev), "inertial"))
 

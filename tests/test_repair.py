@@ -15,11 +15,11 @@ import sympy as sp
 from typer.testing import CliRunner
 
 from gravicat.cli import app
-from gravicat.metricfile import build_chart, load_file
+from gravicat.engine.runner import bundled_documents
+from gravicat.format.metricfile import build_chart, load_file
 from gravicat.registry import make_plugin_manager, verifiers
 from gravicat.repair import KINDS, corruptions, edited_document, find_repairs
-from gravicat.store import bundled_files
-from gravicat.verify import bundled_documents
+from gravicat.store.revisions import bundled_files
 
 BUNDLED = {p.stem: p for p in bundled_files()}
 EXAMPLES = Path(__file__).resolve().parent.parent / "catalog" / "examples"

@@ -17,10 +17,10 @@ from conftest import DATA
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from gravicat._sampling import PRIMES, Sampler, generic_fraction, is_generic
-from gravicat.geometry import Geometry
-from gravicat.metricfile import build_chart, load_file
-from gravicat.verify import bundled_documents
+from gravicat.engine.geometry import Geometry
+from gravicat.engine.runner import bundled_documents
+from gravicat.engine.sampling import PRIMES, Sampler, generic_fraction, is_generic
+from gravicat.format.metricfile import build_chart, load_file
 
 SPECIAL = {Fraction(0), Fraction(1), Fraction(-1), Fraction(1, 2), Fraction(-1, 2), Fraction(2), Fraction(-2)}
 

@@ -1,4 +1,4 @@
-"""gravicat find / gravicat.search: combined filters, chains of limits, sorting and paging.
+"""gravicat find / gravicat.store.search: combined filters, chains of limits, sorting and paging.
 
 The catalogue is a handful of bundled reference entries (loaded by path) plus entries of our
 own Halcyon Reach scenario; check results are stored directly through the store so that the
@@ -15,11 +15,11 @@ from pg import any_url  # noqa: F401  (fixture)
 from sqlalchemy.orm import Session
 from typer.testing import CliRunner
 
-from gravicat import store
 from gravicat.checks import CheckResult, Method, Status
-from gravicat.db import make_engine
 from gravicat.errors import InputError
-from gravicat.search import Query, find_entries
+from gravicat.store import revisions as store
+from gravicat.store.db import make_engine
+from gravicat.store.search import Query, find_entries
 
 BUNDLED = {p.stem: p for p in store.bundled_files()}
 NAMES = ("schwarzschild", "kerr", "kerr-newman", "reissner-nordstrom", "minkowski")

@@ -36,7 +36,7 @@ from _charts import (
 )
 
 from gravicat.checks import CheckResult, Method, Status
-from gravicat.geometry import Geometry
+from gravicat.engine.geometry import Geometry
 
 MODULES = {
     "structure": "structure",

@@ -8,7 +8,7 @@ import pytest
 import sympy
 from conftest import DATA
 
-from gravicat.metricfile import load_file
+from gravicat.format.metricfile import load_file
 
 GOOD = DATA / "corvin-exterior.toml"
 
@@ -139,8 +139,8 @@ reduces-to = "TARGET"
 
 
 def test_bundled_documents_reads_only_the_named_file():
-    from gravicat import store
-    from gravicat.verify import bundled_documents
+    from gravicat.engine.runner import bundled_documents
+    from gravicat.store import revisions as store
 
     docs = bundled_documents()
     kerr = docs.get("kerr")
@@ -155,7 +155,7 @@ def test_bundled_documents_reads_only_the_named_file():
 
 
 def test_own_document_hides_the_bundled_one(tmp_path):
-    from gravicat.verify import bundled_documents
+    from gravicat.engine.runner import bundled_documents
 
     path = tmp_path / "schwarzschild.toml"
     text = LIMITED.replace('id = "halcyon-drift"', 'id = "schwarzschild"')
@@ -184,9 +184,9 @@ def test_reduces_to_a_bundled_entry_is_proved(cli, tmp_path):
 
 
 def test_unknown_reduces_to_target_is_reported_as_before(cli, tmp_path):
-    from gravicat import store
+    from gravicat.engine.runner import check_document, make_resolver
     from gravicat.registry import make_plugin_manager, verifiers
-    from gravicat.verify import check_document, make_resolver
+    from gravicat.store import revisions as store
 
     checks, path = _check_limit(cli, tmp_path, "no-such-entry:static")
     lim = checks["limits:same-as-schwarzschild"]
@@ -211,8 +211,8 @@ def test_check_of_a_file_does_not_import_the_sql_store(tmp_path):
         "from typer.testing import CliRunner\n"
         "from gravicat.cli import app\n"
         f"r = CliRunner().invoke(app, ['check', {str(path)!r}, '--only', 'limits', '--json'])\n"
-        "print(json.dumps({'code': r.exit_code, 'loaded': sorted(m for m in ('gravicat.store', 'sqlalchemy',"
-        " 'gravicat.models') if m in sys.modules)}))\n"
+        "print(json.dumps({'code': r.exit_code, 'loaded': sorted(m for m in ('gravicat.store.revisions', 'sqlalchemy',"
+        " 'gravicat.store.models') if m in sys.modules)}))\n"
     )
     env = {k: v for k, v in os.environ.items() if not k.startswith("GRAVICAT_")}
     env["GRAVICAT_CONFIG"] = str(tmp_path / "no-config.toml")

@@ -1,4 +1,11 @@
-"""The gravicat command line: wiring only. Each command group lives in its own module."""
+"""cli: the gravicat command line (the top room): wiring only.
+
+Each command group lives in its own module; a command parses its options, calls the rooms
+below and renders. Only this room turns a ``CatalogError`` into text and an exit code.
+
+May import every room. Heavy libraries (sympy, alembic, SQLAlchemy's ORM) are imported inside
+command bodies only, so ``gravicat --help`` stays fast.
+"""
 
 from __future__ import annotations
 

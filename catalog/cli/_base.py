@@ -29,13 +29,13 @@ class AppContext:
 
     @cached_property
     def engine(self) -> Engine:
-        from gravicat.db import make_engine
+        from gravicat.store.db import make_engine
 
         return make_engine(self.settings.database)
 
     def open(self, *, create: bool = False) -> Engine:
         """The engine, with the schema checked (and upgraded on SQLite, where the file is the user's own)."""
-        from gravicat.db import ensure_schema
+        from gravicat.store.db import ensure_schema
 
         engine = self.engine
         ensure_schema(engine, may_upgrade=create or engine.dialect.name == "sqlite", may_create=create)

@@ -59,12 +59,12 @@ def _print_reports(metric: str, reports, as_json: bool) -> str:
 
 def load_subject(app_ctx: AppContext, arg: str, revision: str | None = None):
     """A metric file path, or the id of a catalogue entry (latest revision unless ``revision``)."""
-    from gravicat.metricfile import load_file
+    from gravicat.format.metricfile import load_file
 
     path = Path(arg)
     if path.exists() or path.suffix.lower() in (".toml", ".json"):
         return load_file(path, app_ctx.plugins)
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     with app_ctx.transaction() as session:
         return store.document_of(store.revision(session, arg, revision))
@@ -102,9 +102,9 @@ def catalogue_targets(app_ctx: AppContext, doc) -> dict:
     wanted = sorted({lim["reduces-to"].partition(":")[0] for lim in doc.data["limits"].values()} - {doc.id})
     if not wanted or not catalogue_exists(app_ctx):
         return {}
-    from gravicat import store
-    from gravicat.db import current_revision
-    from gravicat.metricfile import MetricDocument
+    from gravicat.format.metricfile import MetricDocument
+    from gravicat.store import revisions as store
+    from gravicat.store.db import current_revision
 
     if current_revision(app_ctx.engine) is None:  # a database never initialised holds no entries
         return {}
@@ -138,10 +138,10 @@ def check(
     CPU-time cap of 10 s + budget x its number of checks; checks a chart did not finish within its
     cap are reported inconclusive.
     """
-    from gravicat._fork import default_jobs
-    from gravicat.metricfile import load_file
+    from gravicat.engine.fork import default_jobs
+    from gravicat.engine.runner import bundled_documents, check_document, make_resolver, select_verifiers
+    from gravicat.format.metricfile import load_file
     from gravicat.registry import verifiers
-    from gravicat.verify import bundled_documents, check_document, make_resolver, select_verifiers
 
     _quick_exit()
     app_ctx = app_context(ctx)
@@ -177,9 +177,9 @@ def verify(
     Results already stored for the same revision hash and verifier version are reused unless --force.
     With --enqueue, one job per (revision, chart, verifier version) needing work is recorded instead.
     """
-    from gravicat import store
+    from gravicat.engine.runner import result_from_json, select_verifiers
     from gravicat.registry import verifiers
-    from gravicat.verify import result_from_json, select_verifiers
+    from gravicat.store import revisions as store
 
     _quick_exit()
     app_ctx = app_context(ctx)
@@ -187,7 +187,7 @@ def verify(
         raise InputError("ID", None, "name entries to verify, or give --all")
     chosen = select_verifiers(verifiers(app_ctx.plugins), None)
     if enqueue:
-        from gravicat import queue
+        from gravicat.api import queue
 
         if jobs != 1:
             raise InputError("--jobs", None, "does not apply with --enqueue; give it to 'gravicat worker'")
@@ -242,7 +242,7 @@ def verify(
 
 
 def _run_units(units: list[dict], jobs: int) -> list[dict]:
-    from gravicat.verify import run_unit
+    from gravicat.engine.runner import run_unit
 
     if not units:
         return []
@@ -258,7 +258,7 @@ def _run_units(units: list[dict], jobs: int) -> list[dict]:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    import gravicat.geometry  # noqa: F401 - sympy and flint once, inherited by every forked worker
+    import gravicat.engine.geometry  # noqa: F401 - sympy and flint once, inherited by every forked worker
 
     gc.freeze()  # the workers' collections then leave the inherited objects alone (no copy-on-write)
     try:
@@ -287,8 +287,8 @@ def invariants(
     as_json: JsonOpt = False,
 ) -> None:
     """The Ricci scalar and the Kretschmann scalar of each chart, in closed form."""
-    from gravicat.geometry import Geometry
-    from gravicat.metricfile import build_chart
+    from gravicat.engine.geometry import Geometry
+    from gravicat.format.metricfile import build_chart
 
     _quick_exit()
     app_ctx = app_context(ctx)

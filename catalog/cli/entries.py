@@ -21,8 +21,9 @@ JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented sh
 def init(ctx: typer.Context,
          empty: Annotated[bool, typer.Option("--empty", help="Do not load the bundled catalogue.")] = False) -> None:
     """Create or upgrade the catalogue and load the bundled reference entries."""
-    from gravicat import __version__, store
-    from gravicat.db import safe_url
+    from gravicat import __version__
+    from gravicat.store import revisions as store
+    from gravicat.store.db import safe_url
 
     app_ctx = app_context(ctx)
     docs = [] if empty else list(store.iter_bundled_documents())
@@ -39,7 +40,7 @@ def init(ctx: typer.Context,
 
 def validate_files(paths: list[Path], pm) -> list:
     """Read, validate and build every chart of every file; raises on the first bad one."""
-    from gravicat.metricfile import build_chart, load_file
+    from gravicat.format.metricfile import build_chart, load_file
 
     docs = []
     for path in paths:
@@ -60,8 +61,9 @@ def add(
     message: Annotated[str, typer.Option("--message", "-m", help="What changed.")] = "",
 ) -> None:
     """Validate metric files and store them; an unchanged file is a no-op, a changed one a new revision."""
-    from gravicat import __version__, store
+    from gravicat import __version__
     from gravicat.config import load_settings
+    from gravicat.store import revisions as store
 
     app_ctx = app_context(ctx)
     who = load_settings(author=author).author
@@ -98,8 +100,8 @@ def list_entries(
     as_json: JsonOpt = False,
 ) -> None:
     """List catalogue entries (latest revisions), filtered."""
-    from gravicat.metricfile import FIELD_EQUATIONS
-    from gravicat.search import Query, find_entries
+    from gravicat.format.metricfile import FIELD_EQUATIONS
+    from gravicat.store.search import Query, find_entries
 
     if equations is not None and equations not in FIELD_EQUATIONS:
         raise InputError("--equations", None, f"'{equations}' is not one of {', '.join(FIELD_EQUATIONS)}")
@@ -132,8 +134,8 @@ def show(
     as_json: JsonOpt = False,
 ) -> None:
     """Show an entry: metadata, parameters with ranges, charts and the latest check results."""
-    from gravicat import store
     from gravicat.errors import NotFound
+    from gravicat.store import revisions as store
 
     with app_context(ctx).transaction() as session:
         rev = store.revision(session, entry, revision)
@@ -196,7 +198,7 @@ def show(
 
 def _matrix_strings(data: dict, chart: str) -> list[list[str]]:
     """The full metric matrix of a line-element chart, as strings (needs sympy)."""
-    from gravicat.metricfile import MetricDocument, build_chart
+    from gravicat.format.metricfile import MetricDocument, build_chart
 
     spec = build_chart(MetricDocument(data, data["id"]), chart)
     return [[str(spec.metric[i, j]) for j in range(spec.metric.cols)] for i in range(spec.metric.rows)]
@@ -212,7 +214,7 @@ def remove(
     """Remove an entry with all its revisions and results."""
     import sys
 
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     if not yes:
         if not sys.stdin.isatty():

@@ -1,6 +1,6 @@
 """`gravicat export`: hand a stored metric (or a metric file) to other programs through exporter plugins.
 
-The export context the code exporters receive is documented in catalog/codegen.py.
+The export context the code exporters receive is documented in catalog/export/codegen.py.
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ def _catalogue_checks(app_ctx: AppContext, doc) -> tuple[str, list[dict]] | None
 
     if not catalogue_exists(app_ctx):
         return None
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     try:
         with app_ctx.transaction() as session:
@@ -81,7 +81,7 @@ def export(
         raise NotFound(f"--to: no export target '{to}' (available: {', '.join(sorted(targets)) or 'none'})")
     path = Path(subject)
     if path.exists() or path.suffix.lower() in (".toml", ".json"):
-        from gravicat.metricfile import load_file
+        from gravicat.format.metricfile import load_file
 
         if revision is not None:
             raise InputError("--revision", None, "applies to catalogue entries, not to a file")
@@ -91,7 +91,7 @@ def export(
                    "source": f"{path}" + (" (identical to the catalogue revision)" if found else
                                           " (not in the catalogue: no stored checks)")}
     else:
-        from gravicat import store
+        from gravicat.store import revisions as store
 
         with app_ctx.transaction() as session:
             rev = store.revision(session, subject, revision)

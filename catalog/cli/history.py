@@ -26,9 +26,9 @@ def resolve_subject(app_ctx: AppContext, arg: str):
 
     Only an entry needs the database.
     """
-    from gravicat.compare import Subject
     from gravicat.errors import NotFound
-    from gravicat.metricfile import load_file
+    from gravicat.format.metricfile import load_file
+    from gravicat.physics.equivalence import Subject
 
     path, chart = Path(arg), None
     head, sep, tail = arg.rpartition(":")
@@ -43,8 +43,8 @@ def resolve_subject(app_ctx: AppContext, arg: str):
     m = SUBJECT.match(arg)
     if not m:
         raise InputError(arg, None, "not a metric file, an entry id, ID:CHART or ID@REVISION:CHART")
-    from gravicat import store
     from gravicat.checks import worst
+    from gravicat.store import revisions as store
 
     slug, rev_ref, chart = m.groups()
     with app_ctx.transaction() as session:
@@ -101,7 +101,7 @@ def compare(
     The verdict is identical, equivalent, not-equivalent or undecided, always with its evidence;
     'equivalent' and 'not-equivalent' are only given with a proof. Exit code 0 for every verdict.
     """
-    from gravicat.compare import compare as run
+    from gravicat.physics.equivalence import compare as run
 
     app_ctx = app_context(ctx)
     a = resolve_subject(app_ctx, first)
@@ -154,7 +154,7 @@ def history(
     as_json: JsonOpt = False,
 ) -> None:
     """Revisions of an entry, newest first: hash, date, author and source, what changed, check status."""
-    from gravicat import history as hist
+    from gravicat.api import history as hist
 
     with app_context(ctx).transaction() as session:
         rows = hist.history_rows(session, entry)
@@ -187,7 +187,7 @@ def diff(
     as_json: JsonOpt = False,
 ) -> None:
     """Field-level diff of two revisions: metric components as symbolic differences, and changed check results."""
-    from gravicat import history as hist
+    from gravicat.api import history as hist
 
     with app_context(ctx).transaction() as session:
         d = hist.diff(session, entry, rev_a, rev_b, budget=budget)
@@ -251,7 +251,7 @@ def revert(
 ) -> None:
     """Restore an old revision as a new revision (same content hash, next number); nothing is deleted."""
     from gravicat import __version__
-    from gravicat import history as hist
+    from gravicat.api import history as hist
     from gravicat.config import load_settings
 
     who = load_settings(author=author).author
@@ -303,7 +303,7 @@ def find(
     as_json: JsonOpt = False,
 ) -> None:
     """Search the catalogue; every filter given must hold. Sorted by id unless --sort; paged."""
-    from gravicat.search import Query, find_entries
+    from gravicat.store.search import Query, find_entries
 
     query = Query(tags=tuple(tag or ()), equations=tuple(equations or ()), status=status, params=tuple(param or ()),
                   coordinates=tuple(coordinate or ()), reference=reference, text=" ".join(text or ()) or None,

@@ -64,10 +64,10 @@ def orbits(
                                            "(needs matplotlib: pip install 'gravicat[plot]').")] = None,
 ) -> None:
     """Horizons, observers and circular orbits of a stationary, axisymmetric chart, from its metric."""
-    from gravicat import orbits as lib
-    from gravicat import units as U
     from gravicat.cli.checks import load_subject
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
+    from gravicat.physics import orbits as lib
+    from gravicat.physics import units as U
 
     app_ctx = app_context(ctx)
     doc = load_subject(app_ctx, subject)

@@ -16,13 +16,13 @@ app = typer.Typer()
 
 def subject_with_checks(app_ctx: AppContext, arg: str):
     """(document, export context): a metric file (no stored checks) or a catalogue entry (its stored checks)."""
-    from gravicat.metricfile import load_file
+    from gravicat.format.metricfile import load_file
 
     path = Path(arg)
     if path.exists() or path.suffix.lower() in (".toml", ".json"):
         doc = load_file(path, app_ctx.plugins)
         return doc, {"revision": doc.hash, "checks": [], "source": str(path)}
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     with app_ctx.transaction() as session:
         rev = store.revision(session, arg)
@@ -63,7 +63,7 @@ def probe(
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")] = False,
 ) -> None:
     """Integrate a timelike geodesic with the exported Python code; report the drift of g(u,u) + 1, E and L."""
-    from gravicat.probe import probe as run_probe
+    from gravicat.physics.probe import probe as run_probe
     from gravicat.registry import exporters
 
     app_ctx = app_context(ctx)

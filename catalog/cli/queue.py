@@ -1,6 +1,6 @@
 """Queue commands: worker (run queued verification jobs) and queue (show the jobs by state).
 
-Jobs are recorded by ``gravicat verify --all --enqueue``; see :mod:`gravicat.queue`.
+Jobs are recorded by ``gravicat verify --all --enqueue``; see :mod:`gravicat.api.queue`.
 """
 
 from __future__ import annotations
@@ -37,9 +37,9 @@ def worker(
     """
     from functools import partial
 
-    from gravicat import queue
+    from gravicat.api import queue
+    from gravicat.engine.runner import select_verifiers
     from gravicat.registry import make_plugin_manager, verifiers
-    from gravicat.verify import select_verifiers
 
     app_ctx = app_context(ctx)
     engine = app_ctx.open()
@@ -62,7 +62,7 @@ def queue_status(
     as_json: JsonOpt = False,
 ) -> None:
     """Show how many verification jobs are pending, running, done and failed."""
-    from gravicat import queue
+    from gravicat.api import queue
 
     app_ctx = app_context(ctx)
     with app_ctx.transaction() as session:

@@ -99,9 +99,10 @@ def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> li
         else:
             first = f"wrote {written.path}: {written.note}"
         return [first, f"the catalogue was not changed (to store the repaired file: gravicat add {written.path})"]
-    from gravicat import __version__, store
+    from gravicat import __version__
     from gravicat.config import load_settings
-    from gravicat.metricfile import MetricDocument
+    from gravicat.format.metricfile import MetricDocument
+    from gravicat.store import revisions as store
 
     doc = MetricDocument(chosen.document.data, f"repair of catalogue:{report.metric}")
     with app_ctx.transaction() as session:
@@ -140,10 +141,10 @@ def repair(
     there is nothing to repair or a repair is suggested, 1 when none is found.
     """
     from gravicat.cli.checks import load_subject
-    from gravicat.metricfile import load_file
+    from gravicat.engine.runner import bundled_documents
+    from gravicat.format.metricfile import load_file
     from gravicat.registry import verifiers
     from gravicat.repair import find_repairs
-    from gravicat.verify import bundled_documents
 
     app_ctx = app_context(ctx)
     subject = file

@@ -76,8 +76,8 @@ def best_process(argv, repeat, env=None):
 
 def chart_job(doc_id, chart):
     def run():
+        from gravicat.engine.runner import bundled_documents, check_chart, make_resolver
         from gravicat.registry import make_plugin_manager, verifiers
-        from gravicat.verify import bundled_documents, check_chart, make_resolver
 
         docs = bundled_documents()
         resolve = make_resolver(docs)
@@ -91,7 +91,7 @@ def chart_job(doc_id, chart):
 
 
 def bundled_charts():
-    from gravicat.verify import bundled_documents
+    from gravicat.engine.runner import bundled_documents
 
     return [(doc_id, c) for doc_id, doc in sorted(bundled_documents().items()) for c in doc.chart_names]
 

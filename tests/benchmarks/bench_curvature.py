@@ -62,7 +62,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from _charts import M, chart, kerr, kerr_metric, kerr_newman, ph, r, t, th  # noqa: E402
 from _charts import a as spin  # noqa: E402
 
-from gravicat.geometry import Geometry, _invert  # noqa: E402
+from gravicat.engine.geometry import Geometry, _invert  # noqa: E402
 from gravicat.plugins.field_equations import residuals  # noqa: E402
 
 X = sp.Symbol("x", real=True)
@@ -489,9 +489,9 @@ def checks_job(units, algebraic=True):
     outside the timing of the other units' checks but inside the child's CPU time)."""
 
     def run():
-        from gravicat import _ratfun
+        from gravicat.engine import ratfun as _ratfun
+        from gravicat.engine.runner import bundled_documents, check_chart, make_resolver
         from gravicat.registry import make_plugin_manager, verifiers
-        from gravicat.verify import bundled_documents, check_chart, make_resolver
 
         _ratfun.Field.algebraic_roots = algebraic
         docs = bundled_documents()
@@ -516,7 +516,7 @@ def checks_job(units, algebraic=True):
 
 
 def run_nested(repeat=3):
-    from gravicat.verify import bundled_documents
+    from gravicat.engine.runner import bundled_documents
 
     docs = bundled_documents()
     every = [f"{e}:{c}" for e, d in sorted(docs.items()) for c in d.chart_names]

@@ -74,7 +74,7 @@ class Databases:
         return "postgresql" if self.admin.startswith("postgresql") else "sqlite"
 
     def fresh(self) -> str:
-        from gravicat.db import ensure_schema, make_engine
+        from gravicat.store.db import ensure_schema, make_engine
 
         n = len(self.made)
         if self.dialect == "sqlite":
@@ -116,9 +116,10 @@ def load_and_enqueue(url: str, only: list[str] | None, budget: float, *, force: 
     """Store the bundled catalogue (unless stored already) and enqueue its verification."""
     from sqlalchemy.orm import Session
 
-    from gravicat import queue, store
-    from gravicat.db import make_engine
+    from gravicat.api import queue
     from gravicat.registry import make_plugin_manager, verifiers
+    from gravicat.store import revisions as store
+    from gravicat.store.db import make_engine
 
     engine = make_engine(url)
     with Session(engine) as session, session.begin():
@@ -136,8 +137,8 @@ def chart_seconds(url: str) -> dict[tuple[str, str], float]:
     from sqlalchemy import func, select
     from sqlalchemy.orm import Session
 
-    from gravicat.db import make_engine
-    from gravicat.models import CheckRecord, Entry, Revision
+    from gravicat.store.db import make_engine
+    from gravicat.store.models import CheckRecord, Entry, Revision
 
     engine = make_engine(url)
     with Session(engine) as session:
@@ -153,7 +154,7 @@ def run_queue(url: str, workers: int) -> tuple[float, dict]:
     import resource
     from functools import partial
 
-    from gravicat import queue
+    from gravicat.api import queue
     from gravicat.registry import make_plugin_manager
 
     def cpu() -> float:  # this process and its finished children (the forked workers, their helpers)
@@ -232,10 +233,11 @@ def overhead(url: str, count: int) -> dict[str, float]:
     from sqlalchemy import text
     from sqlalchemy.orm import Session
 
-    from gravicat import queue, store
+    from gravicat.api import queue
     from gravicat.checks import CheckResult, Method, Status
-    from gravicat.db import make_engine
     from gravicat.registry import make_plugin_manager
+    from gravicat.store import revisions as store
+    from gravicat.store.db import make_engine
 
     engine = make_engine(url)
     with Session(engine) as session, session.begin():

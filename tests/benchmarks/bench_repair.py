@@ -77,8 +77,8 @@ def same_chart(original, repaired, chart: str, seed: int = 7) -> bool:
     """Both documents give the same metric and matter fields on ``chart`` (sympy, 40 digits, 3 points)."""
     import sympy as sp
 
-    from gravicat.geometry import Geometry
-    from gravicat.metricfile import build_chart
+    from gravicat.engine.geometry import Geometry
+    from gravicat.format.metricfile import build_chart
 
     a, b = build_chart(original, chart), build_chart(repaired, chart)
     ea, eb = a.claim_expressions(), b.claim_expressions()
@@ -106,7 +106,7 @@ def same_chart(original, repaired, chart: str, seed: int = 7) -> bool:
 def make_cases(seed: int, entries: list[str] | None, minimum: int):
     from gravicat.errors import CatalogError
     from gravicat.repair import KINDS, corruptions, edited_document
-    from gravicat.store import iter_bundled_documents
+    from gravicat.store.revisions import iter_bundled_documents
 
     docs = {d.id: d for d in iter_bundled_documents()}
     ids = sorted(docs) if not entries else entries
@@ -126,7 +126,7 @@ def make_cases(seed: int, entries: list[str] | None, minimum: int):
                     for fld, text in options[:12]:
                         try:
                             bad = edited_document(doc, chart, {fld: text})
-                            from gravicat.metricfile import build_chart
+                            from gravicat.format.metricfile import build_chart
 
                             build_chart(bad, chart)
                         except CatalogError:
@@ -147,8 +147,8 @@ def make_cases(seed: int, entries: list[str] | None, minimum: int):
 
 def _case(case, vs, docs, jobs, budget, send) -> None:
     """One corrupted metric: plain check (timed), then repair, then the comparison with the original."""
+    from gravicat.engine.runner import check_chart, make_resolver
     from gravicat.repair import REPAIR_VERIFIERS, find_repairs
-    from gravicat.verify import check_chart, make_resolver
 
     entry, kind, chart, fld, _text, doc, bad = case
     t0 = time.perf_counter()
@@ -262,11 +262,11 @@ def run_recovery(seed: int, jobs: int, entries: list[str] | None, limit: int | N
 
 
 def run_kerr(jobs: int = 2) -> dict:
-    from gravicat.metricfile import load_file
+    from gravicat.engine.runner import bundled_documents, check_document, make_resolver
+    from gravicat.format.metricfile import load_file
     from gravicat.registry import make_plugin_manager, verifiers
     from gravicat.repair import find_repairs
-    from gravicat.store import bundled_files
-    from gravicat.verify import bundled_documents, check_document, make_resolver
+    from gravicat.store.revisions import bundled_files
 
     src = next(p for p in bundled_files() if p.name == "kerr.toml")
     text = src.read_text()
@@ -298,9 +298,9 @@ def run_kerr(jobs: int = 2) -> dict:
 def divisor_cases():
     """(entry, chart, field, corrupted text, doc, bad): one /3 dropped in a chart with a cosmological constant."""
     from gravicat.errors import CatalogError
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
     from gravicat.repair import _Model, corruptions, edited_document
-    from gravicat.store import iter_bundled_documents
+    from gravicat.store.revisions import iter_bundled_documents
 
     cases = []
     for doc in sorted(iter_bundled_documents(), key=lambda d: d.id):
@@ -323,9 +323,9 @@ def divisor_cases():
 
 
 def run_divisors(jobs: int, budget: float) -> dict:
+    from gravicat.engine.runner import bundled_documents
     from gravicat.registry import make_plugin_manager, verifiers
     from gravicat.repair import find_repairs
-    from gravicat.verify import bundled_documents
 
     vs = verifiers(make_plugin_manager())
     docs = bundled_documents()

@@ -51,11 +51,11 @@ def build(url: str, entries: int) -> dict:
     from sqlalchemy import insert, select
     from sqlalchemy.orm import Session
 
-    from gravicat import store
     from gravicat.checks import Method, Status
-    from gravicat.db import ensure_schema, make_engine
-    from gravicat.metricfile import MetricDocument
-    from gravicat.models import CheckRecord, Revision
+    from gravicat.format.metricfile import MetricDocument
+    from gravicat.store import revisions as store
+    from gravicat.store.db import ensure_schema, make_engine
+    from gravicat.store.models import CheckRecord, Revision
 
     engine = make_engine(url)
     ensure_schema(engine, may_upgrade=True, may_create=True)
@@ -135,8 +135,8 @@ def naive(session, predicate) -> int:
     """Baseline: load every latest revision's document and its status, filter in Python."""
     from sqlalchemy import func, select
 
-    from gravicat import store
-    from gravicat.models import Revision
+    from gravicat.store import revisions as store
+    from gravicat.store.models import Revision
 
     latest = select(func.max(Revision.id)).group_by(Revision.entry_id)
     rows = session.execute(select(Revision.id, Revision.document).where(Revision.id.in_(latest))).all()
@@ -147,7 +147,7 @@ def naive(session, predicate) -> int:
 def run_queries(engine, repeat: int, with_baseline: bool) -> list[tuple]:
     from sqlalchemy.orm import Session
 
-    from gravicat.search import Query, find_entries
+    from gravicat.store.search import Query, find_entries
 
     out = []
     for label, fields, predicate in QUERIES:
@@ -187,7 +187,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.keep is not None and args.keep.exists():
             import shutil
 
-            from gravicat.db import make_engine
+            from gravicat.store.db import make_engine
 
             shutil.copy(args.keep, work)
             engine = make_engine(url)

@@ -20,10 +20,10 @@ with the largest ``priority`` (the chart's cost, measured at its last verificati
 else estimated, see :func:`chart_priority`: long charts start first, so that several
 workers finish together), then the oldest, with ``SELECT ... FOR UPDATE SKIP LOCKED``,
 together with the other claimable jobs of the same chart of the same revision: the
-verifiers of one chart share one prepared :class:`gravicat.geometry.Geometry`, as in
+verifiers of one chart share one prepared :class:`gravicat.engine.geometry.Geometry`, as in
 ``gravicat verify``. On PostgreSQL the claim is one ``UPDATE ... RETURNING`` over the
 locked rows. On SQLite the same selection runs without the ``FOR UPDATE`` clause, and
-the ``BEGIN IMMEDIATE`` of every write transaction (see :mod:`gravicat.db`)
+the ``BEGIN IMMEDIATE`` of every write transaction (see :mod:`gravicat.store.db`)
 serialises the claims: several workers on one machine never share a job either.
 
 Exactly once. A claim writes a fresh ``token`` and a lease (``lease_until``) on its
@@ -35,7 +35,7 @@ lease) can never store a result twice, and its job is claimed again by another
 worker once the lease has expired.
 
 Failures. A verifier that crashes gives an ``error`` result (see
-:func:`gravicat.verify.run_verifier`); such a job goes back to the queue (behind the
+:func:`gravicat.engine.runner.run_verifier`); such a job goes back to the queue (behind the
 untried jobs) until it has been tried ``max_attempts`` times, and is then ``failed``
 with the error result stored and its message in ``Job.error``. A job whose lease
 expired on its last attempt is failed the same way ("the worker stopped").
@@ -63,9 +63,9 @@ from sqlalchemy import and_, bindparam, func, or_, select, tuple_, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
-from gravicat import store
 from gravicat.checks import CheckResult, Method, Status
-from gravicat.models import CheckRecord, Entry, Job, JobState, Revision
+from gravicat.store import revisions as store
+from gravicat.store.models import CheckRecord, Entry, Job, JobState, Revision
 
 if TYPE_CHECKING:
     import pluggy
@@ -155,7 +155,7 @@ def enqueue(session: Session, revisions: Iterable[Revision], verifiers: Iterable
     concurrent enqueue of the same revisions (the unique key decides; the loser
     re-reads and counts the other's jobs as queued).
     """
-    from gravicat.verify import DEFAULT_BUDGET
+    from gravicat.engine.runner import DEFAULT_BUDGET
 
     chosen = [(v.name, v.version) for v in verifiers]
     total = Enqueued()
@@ -326,7 +326,7 @@ class _TakenOver(Exception):
 
 
 def _revision_ref(claim: Claim) -> Revision:
-    """A transient stand-in for the claimed revision: :func:`gravicat.store.save_results` needs
+    """A transient stand-in for the claimed revision: :func:`gravicat.store.revisions.save_results` needs
     only its id, and loading the row (with its whole document) again would cost a round trip."""
     return Revision(id=claim.revision_id)
 
@@ -339,7 +339,7 @@ class _CatalogueDocs(Mapping):
 
     def get(self, slug, default=None):
         if slug not in self.cache:
-            from gravicat.metricfile import MetricDocument
+            from gravicat.format.metricfile import MetricDocument
 
             with Session(self.engine) as session:
                 rev = store.head(session, slug)
@@ -514,8 +514,8 @@ class Worker:
 
     def execute(self, claim: Claim) -> dict[int, list[CheckResult]]:
         """Run the claimed verifiers on the chart (one shared Geometry); results by job id."""
-        from gravicat.metricfile import MetricDocument
-        from gravicat.verify import BundledDocuments, check_chart, make_resolver
+        from gravicat.engine.runner import BundledDocuments, check_chart, make_resolver
+        from gravicat.format.metricfile import MetricDocument
 
         doc = MetricDocument(claim.document, f"catalogue:{claim.slug}@{claim.hash[:12]}")
         by_name = {job.verifier: job for job in claim.jobs}
@@ -698,8 +698,8 @@ def _child(url: str, plugins: Callable[[], pluggy.PluginManager], options: dict[
 
     from sqlalchemy.exc import OperationalError
 
-    from gravicat.db import make_engine
     from gravicat.errors import CatalogError
+    from gravicat.store.db import make_engine
 
     engine = None
     try:
@@ -726,8 +726,8 @@ def run_workers(url: str, count: int, plugins: Callable[[], pluggy.PluginManager
     ``plugins`` makes the plugin manager in each worker. SIGTERM or Ctrl-C stops the
     workers; the jobs they hold go back to the queue untried.
     """
-    from gravicat.db import make_engine
     from gravicat.errors import CatalogError
+    from gravicat.store.db import make_engine
 
     if count == 1:
         own = engine is None

@@ -117,8 +117,8 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
     import numpy as np
     from scipy.integrate import solve_ivp
 
-    from gravicat.codegen import chart_name, numeric_parameters, parse_assignments, provenance
-    from gravicat.metricfile import build_chart
+    from gravicat.export.codegen import chart_name, numeric_parameters, parse_assignments, provenance
+    from gravicat.format.metricfile import build_chart
 
     if orbit not in ORBITS:
         raise InputError("--orbit", None, f"'{orbit}' is not one of {', '.join(ORBITS)}")

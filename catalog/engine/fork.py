@@ -2,7 +2,7 @@
 
 One helper for every "do this in a child process that cannot run away" in gravicat: the
 per-chart children of ``gravicat check``, and (to be moved onto it) the time-limited proofs of
-:mod:`gravicat.geometry`, :mod:`gravicat.compare` and :mod:`gravicat.repair`.
+:mod:`gravicat.engine.geometry`, :mod:`gravicat.physics.equivalence` and :mod:`gravicat.repair`.
 
 A task is a function ``fn(emit)``. In the child it may call ``emit(item)`` any number of times
 (each picklable ``item`` reaches the parent at once, so partial results survive a child that is
@@ -29,7 +29,7 @@ process with the same :class:`Outcome` (no limits can be enforced there; ``limit
 
 Usage::
 
-    from gravicat._fork import run_forked, run_many
+    from gravicat.engine.fork import run_forked, run_many
 
     out = run_forked(lambda emit: expensive(), cpu_seconds=30)
     out.value if out.finished else out.limit or out.error

@@ -1,7 +1,7 @@
 """A chart of a metric file, as sympy objects: the input every verifier works from.
 
-:func:`gravicat.metricfile.build_chart` makes a :class:`ChartSpec` from a
-validated document; :class:`gravicat.geometry.Geometry` prepares it (inverse,
+:func:`gravicat.format.metricfile.build_chart` makes a :class:`ChartSpec` from a
+validated document; :class:`gravicat.engine.geometry.Geometry` prepares it (inverse,
 derivatives, curvature) once per run.
 
 Conventions: signature (-,+,+,+), G = c = 1, G_ab + Lambda g_ab = 8 pi T_ab.

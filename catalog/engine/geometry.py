@@ -1,6 +1,6 @@
 """The prepared chart shared by every verifier of one run.
 
-:class:`Geometry` takes a :class:`gravicat.chartspec.ChartSpec` and holds the
+:class:`Geometry` takes a :class:`gravicat.format.chartspec.ChartSpec` and holds the
 metric, its inverse and its first and second derivatives, computed once, and
 the curvature (Christoffel symbols, Riemann, Ricci, Ricci scalar, Einstein,
 Kretschmann, Weyl square), computed lazily and cached.
@@ -9,7 +9,7 @@ Two exact representations ("paths"):
 
 * ``"flint"``: every expression becomes an element of an exact differential
   field of multivariate rational functions over python-flint
-  (:mod:`gravicat._ratfun`): coordinates, parameters, values of arbitrary
+  (:mod:`gravicat.engine.ratfun`): coordinates, parameters, values of arbitrary
   functions and their derivatives (``a``, ``a_t``, ``a_tt``...), ``cos`` of an
   angle with ``sin`` as a square-root generator (``sin**2 = 1 - cos**2``,
   ``d/dtheta cos = -sin``), other square roots, nested roots
@@ -59,8 +59,8 @@ from typing import Any
 import flint
 import sympy as sp
 
-from ._ratfun import BudgetExceeded, Elem, Field, Unsupported, arb_precision, settle_signs, unsettled
-from ._sampling import DIGITS, Sampler
+from gravicat.engine.ratfun import BudgetExceeded, Elem, Field, Unsupported, arb_precision, settle_signs, unsettled
+from gravicat.engine.sampling import DIGITS, Sampler
 
 __all__ = ["Geometry", "PointData", "Outcome", "prove_zero", "BudgetExceeded", "Unsupported"]
 
@@ -417,7 +417,7 @@ class Geometry(_Curvature):
 
     * ``spec``, ``coords``, ``params``, ``n``, ``path`` ("flint" / "sympy"),
       ``fallback_reason`` (why not flint, or ""), ``field`` (the flint
-      :class:`~gravicat._ratfun.Field` or None);
+      :class:`~gravicat.engine.ratfun.Field` or None);
     * exact objects in the path's representation (flint elements or sympy
       expressions; lists indexed by coordinate number): ``g``, ``dg[c][a][b]``,
       ``ddg[c][d][a][b]``, ``ginv``, ``det``, ``christoffel[a][b][c]``
@@ -433,7 +433,7 @@ class Geometry(_Curvature):
       ``legend()``; ``opaque`` maps each placeholder to its expression;
     * ``is_zero(v)``: exact zero test of the path;
     * ``sample_points()``, ``draw_point()``: :class:`PointData` (seeded, cached; generic points,
-      see :mod:`gravicat._sampling`); ``degeneracy()``: why the inverse metric does not exist on
+      see :mod:`gravicat.engine.sampling`); ``degeneracy()``: why the inverse metric does not exist on
       the domain, or None;
     * ``verify(fn, ...)``: sampled stage then proof, an :class:`Outcome`;
       ``prove_values(fn)``: symbolic values within the budget;
@@ -501,7 +501,7 @@ class Geometry(_Curvature):
     def _settle(self, e):
         """sympy path: ``e`` with ``Abs``, ``sign``, ``Heaviside`` and ``DiracDelta`` replaced where
         the domain and the parameter ranges decide their argument's sign (``sqrt(r**2) -> r`` for
-        ``r > 0``; see :func:`gravicat._ratfun.settle_signs`)."""
+        ``r > 0``; see :func:`gravicat.engine.ratfun.settle_signs`)."""
         return settle_signs(e, self.coords, tuple(self.spec.param_ranges) + tuple(self.spec.domain))
 
     def _nf(self, v):
@@ -984,7 +984,7 @@ def inertia(rows) -> tuple[tuple[int, int, int], bool]:
     """
     import flint
 
-    from ._ratfun import arb_precision
+    from gravicat.engine.ratfun import arb_precision
 
     n = len(rows)
     flat = [v for row in rows for v in row]
@@ -1052,7 +1052,7 @@ def _run_limited(fn, seconds):
     The child gets a CPU-time cap (so a loaded machine does not turn a proof into a timeout, as on
     the flint path); the parent also gives up after a generous wall-clock limit. The error is
     ``"budget"`` when a limit stopped the child."""
-    from gravicat._fork import run_forked
+    from gravicat.engine.fork import run_forked
 
     out = run_forked(lambda emit: fn(), cpu_seconds=max(1.0, seconds), wall_seconds=max(4 * seconds, seconds + 30))
     if out.finished:
@@ -1244,7 +1244,7 @@ def prove_zero(
     ``coords`` and ``params``) bound the sample points. Undeclared symbols are
     treated as parameters.
     """
-    from .chartspec import ChartSpec
+    from gravicat.format.chartspec import ChartSpec
 
     exprs = {k: sp.sympify(v) for k, v in exprs.items()}
     coords = tuple(coords)

@@ -36,7 +36,7 @@ free. A parameter-dependent proof of non-equivalence is used only when at most
 one side has free parameters, and then holds for generic values of them.
 A coordinate map (``--map``) may name the parameters of either chart by their own names; a
 parameter identified by ``match`` stands for what it was identified with.
-Every "identically zero" claim goes through :func:`gravicat.geometry.prove_zero`
+Every "identically zero" claim goes through :func:`gravicat.engine.geometry.prove_zero`
 (exact sampled stage, then exact proof), so "proved" means proved.
 """
 
@@ -48,7 +48,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from gravicat.errors import InputError
-from gravicat.metricfile import MetricDocument
+from gravicat.format.metricfile import MetricDocument
 
 VERDICTS = ("identical", "equivalent", "not-equivalent", "undecided")
 INVARIANTS = {"ricci-scalar": "ricci_scalar", "kretschmann": "kretschmann", "weyl-square": "weyl_square"}
@@ -110,7 +110,7 @@ def _split_item(item: str, option: str) -> tuple[str, str]:
 
 def _parse(text: str, env: dict[str, Any], coordinates: Sequence[str], option: str, name: str):
     """Whitelist-parse an expression of the command line with the names of ``env`` declared."""
-    from gravicat.expr import Names, check_expression, to_sympy
+    from gravicat.format.expr import Names, check_expression, to_sympy
 
     names = Names(symbols=frozenset(env), coordinates=frozenset(coordinates))
     tree = check_expression(text, names, source=option, field=name)
@@ -139,7 +139,7 @@ def _depends(expr, coords) -> bool:
 
 def _limited(fn, seconds: float):
     """Run ``fn()`` in a forked child with a hard time limit: (value, None) or (None, reason)."""
-    from gravicat._fork import run_forked
+    from gravicat.engine.fork import run_forked
 
     out = run_forked(lambda emit: fn(), wall_seconds=seconds)
     if out.finished:
@@ -188,14 +188,14 @@ class _Side:
 
     def geometry(self, budget: float):
         if self.geo is None:
-            from gravicat.geometry import Geometry
+            from gravicat.engine.geometry import Geometry
 
             self.geo = Geometry(self.spec, budget=budget)
         return self.geo
 
     def zero(self, exprs: dict, budget: float, what: str):
         """prove_zero over this side's coordinates, parameters, ranges and domain."""
-        from gravicat.geometry import prove_zero
+        from gravicat.engine.geometry import prove_zero
 
         return prove_zero(exprs, self.spec.coords, self.spec.params, self.relations, budget=budget, what=what)
 
@@ -293,7 +293,7 @@ def _compatible(sym_b, sym_a, ranges_b) -> bool:
 
 
 def _signature(side: _Side, budget: float) -> None:
-    from gravicat.geometry import inertia
+    from gravicat.engine.geometry import inertia
 
     seen = set()
     exact = True
@@ -979,7 +979,7 @@ def _side_json(side: _Side, shown_match: dict[str, str]) -> dict[str, Any]:
 def compare(a: Subject, b: Subject, *, match: Sequence[str] = (), coordinate_map: Sequence[str] = (),
             budget: float = 20.0, search_map: bool = True) -> Comparison:
     """Compare chart ``a.chart`` of ``a.doc`` with chart ``b.chart`` of ``b.doc``. See the module docstring."""
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
 
     sa = _Side("A", a, build_chart(a.doc, a.chart))
     sb = _Side("B", b, build_chart(b.doc, b.chart))

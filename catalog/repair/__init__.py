@@ -11,12 +11,12 @@ for ``cos``. :func:`find_repairs` looks for it:
 2. **Candidates.** Every expression the failing claim is built from (each ``define``
    sub-expression that reaches it, the line element or each metric component, and the
    matter fields: potential, fluid, null dust, cosmological constant) is parsed by the
-   whitelist parser (:mod:`gravicat.expr`), and its syntax tree is edited in one place; the
+   whitelist parser (:mod:`gravicat.format.expr`), and its syntax tree is edited in one place; the
    edit kinds are :data:`KINDS`. An edited tree is printed back to text, parsed and checked
    again (nothing is ever evaluated as code), and edits are de-duplicated by the resulting
    expression.
 3. **Screening.** Every candidate is evaluated at the same few points of the chart's domain
-   (drawn once by :class:`gravicat.geometry.Geometry` from the failing chart, so they are
+   (drawn once by :class:`gravicat.engine.geometry.Geometry` from the failing chart, so they are
    the points ``check`` samples, plus the counterexample point of each failing check): the
    metric, its first and second derivatives and the matter fields are computed as
    second-order jets in ball arithmetic (python-flint ``arb``, 256 bits: every value is an
@@ -26,7 +26,7 @@ for ``cos``. :func:`find_repairs` looks for it:
    for the signature / field-equation / limit checks that passed before. Candidates are
    screened in parallel (``jobs`` forked processes).
 4. **Proof.** Each survivor is written into a copy of the document, validated with
-   :func:`gravicat.metricfile.validate`, and checked again by the registered verifiers
+   :func:`gravicat.format.metricfile.validate`, and checked again by the registered verifiers
    (exact sampled stage, then the symbolic proof), in a child process with a hard time
    limit. A survivor that still fails, or that breaks a check which did not fail before, is
    dropped.
@@ -41,6 +41,9 @@ first), then by proof status and by how common the kind of slip is. A suggestion
 hypothesis to be checked against the source paper: several different metrics may satisfy the
 same claim (a vacuum metric with the sign of the mass flipped is still a vacuum metric), which
 is why the checks that passed before must keep passing.
+
+Room: ``repair`` may import ``physics``, ``export``, ``engine``, ``format`` and the core
+contract; never the store, api or cli rooms.
 """
 
 from __future__ import annotations
@@ -63,7 +66,7 @@ from typing import Any
 
 from gravicat.checks import CheckResult, Method, Status
 from gravicat.errors import CatalogError, InputError
-from gravicat.expr import (
+from gravicat.format.expr import (
     _ADDITIVE,
     _MULTIPLICATIVE,
     Names,
@@ -73,7 +76,7 @@ from gravicat.expr import (
     check_expression_size,
     names_in,
 )
-from gravicat.metricfile import FUNCTION_DECL, MetricDocument, canonical_json, validate
+from gravicat.format.metricfile import FUNCTION_DECL, MetricDocument, canonical_json, validate
 
 __all__ = [
     "KINDS",
@@ -1736,7 +1739,7 @@ def _make_candidate(model: _Model, edits: tuple[_Edit, ...]) -> _Cand | None:
 
     The edited tree is built only from node types of the whitelist; it is screened as built,
     and a survivor's text is parsed and checked again by :func:`check_candidate` (and the whole
-    document by :func:`gravicat.metricfile.validate`) before anything else uses it.
+    document by :func:`gravicat.format.metricfile.validate`) before anything else uses it.
     """
     by_key: dict[tuple, list[_Edit]] = {}
     for e in edits:
@@ -1914,9 +1917,9 @@ def _screen_all(screen: _Screen, cands: list[_Cand], jobs: int, deadline: float)
 def _check_chart(doc: MetricDocument, chart: str, verifiers: list, docs: Mapping[str, MetricDocument],
                  budget: float, seed: int, want_geometry: bool, limited: Iterable = ()):
     """Run ``verifiers`` on the chart, then ``limited`` ones under a hard time limit of ``budget`` seconds."""
-    from gravicat.geometry import Geometry
-    from gravicat.metricfile import build_chart
-    from gravicat.verify import make_resolver, run_verifier
+    from gravicat.engine.geometry import Geometry
+    from gravicat.engine.runner import make_resolver, run_verifier
+    from gravicat.format.metricfile import build_chart
 
     spec = build_chart(doc, chart, make_resolver({**docs, doc.id: doc}))
     geometry = Geometry(spec, budget=budget, seed=seed)
@@ -1937,8 +1940,8 @@ def _run_limited(verifiers: list, geometry, seconds: float) -> list[CheckResult]
     """
     if not verifiers:
         return []
-    from gravicat._fork import run_forked
-    from gravicat.verify import result_from_json, run_verifier
+    from gravicat.engine.fork import run_forked
+    from gravicat.engine.runner import result_from_json, run_verifier
 
     def task(emit):
         for v in verifiers:
@@ -1957,7 +1960,7 @@ def _run_limited(verifiers: list, geometry, seconds: float) -> list[CheckResult]
 
 def _call_limited(fn: Callable[[], Any], seconds: float):
     """``fn()`` in a forked child killed after ``seconds``: (True, value) or (False, reason)."""
-    from gravicat._fork import run_forked
+    from gravicat.engine.fork import run_forked
 
     out = run_forked(lambda emit: fn(), wall_seconds=seconds)
     if out.finished:
@@ -1998,7 +2001,7 @@ def _baseline_task(chart: str) -> dict:
 
 
 def _result_from_json(d: dict) -> CheckResult:
-    from gravicat.verify import result_from_json
+    from gravicat.engine.runner import result_from_json
 
     return result_from_json(d)
 
@@ -2167,8 +2170,8 @@ def find_repairs(
     for c in names:
         if c not in doc.chart_names:
             raise InputError(doc.source, f"charts.{c}", f"no such chart (charts: {', '.join(doc.chart_names)})")
-    from gravicat.metricfile import build_chart
-    from gravicat.verify import make_resolver
+    from gravicat.engine.runner import make_resolver
+    from gravicat.format.metricfile import build_chart
 
     in_process = jobs <= 1 or len(names) <= 1
     if not in_process:
@@ -2469,7 +2472,7 @@ def write_suggestion(path: Path, suggestion: Suggestion) -> Written:
     """Write a repair: in place in a TOML file when every edited string appears there verbatim
     (the rest of the file, comments included, is kept), else the canonical JSON beside it
     (``NAME.repaired.json``). The written file is read back and must give the repaired revision hash."""
-    from gravicat.metricfile import load_file
+    from gravicat.format.metricfile import load_file
 
     path = Path(path)
     target_hash = suggestion.document.hash

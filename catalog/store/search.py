@@ -31,7 +31,7 @@ from sqlalchemy.orm import Session, selectinload
 
 from gravicat.checks import SEVERITY, Status
 from gravicat.errors import InputError
-from gravicat.models import Chart, CheckRecord, Entry, Parameter, Reference, Revision, Tag
+from gravicat.store.models import Chart, CheckRecord, Entry, Parameter, Reference, Revision, Tag
 
 STATUSES = ("pass", "fail", "inconclusive", "error", "skipped", "unverified", "verified")
 SORTS = ("id", "title", "updated")
@@ -98,7 +98,7 @@ def _severity():
 
 def validate(query: Query) -> Query:
     """Refuse unknown option values with a one-line error naming the option."""
-    from gravicat.metricfile import FIELD_EQUATIONS, SLUG
+    from gravicat.format.metricfile import FIELD_EQUATIONS, SLUG
 
     for eq in query.equations:
         if eq not in FIELD_EQUATIONS:

@@ -1,6 +1,6 @@
 """Revision history of an entry: summaries, field-level diffs, symbolic metric differences, revert.
 
-Revisions are immutable rows (``gravicat.models.Revision``); nothing here
+Revisions are immutable rows (``gravicat.store.models.Revision``); nothing here
 updates or deletes one. :func:`revert` stores an old revision's document again
 as a new revision (same content hash, next number), so the history only grows.
 
@@ -16,8 +16,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session, selectinload
 
 from gravicat.errors import InputError, NotFound
-from gravicat.metricfile import MetricDocument
-from gravicat.models import Entry, Revision
+from gravicat.format.metricfile import MetricDocument
+from gravicat.store.models import Entry, Revision
 
 TOP_ORDER = ("title", "summary", "field-equations", "tags", "references", "notes", "flat-when", "parameters",
              "charts", "limits")
@@ -193,7 +193,7 @@ def metric_changes(old: dict[str, Any], new: dict[str, Any], *, budget: float = 
     """
     import sympy as sp
 
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
 
     out: list[MetricChange] = []
     for chart, c_new in new.get("charts", {}).items():
@@ -239,7 +239,7 @@ def _small(expr) -> bool:
 
 def _decide_nonzero(diffs: dict, spec, budget: float) -> dict[str, str]:
     """component -> "zero" (proved equal), "" (proved different) or a note (not decided)."""
-    from gravicat.geometry import prove_zero
+    from gravicat.engine.geometry import prove_zero
 
     out = {}
     for comp, d in diffs.items():
@@ -259,7 +259,7 @@ def _decide_nonzero(diffs: dict, spec, budget: float) -> dict[str, str]:
 
 def check_changes(session: Session, old: Revision | None, new: Revision) -> list[CheckChange]:
     """Stored results whose status differs between two revisions (newest result per chart and check)."""
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     before = {(r.chart, r.check): r for r in store.results_for(session, old)} if old is not None else {}
     after = {(r.chart, r.check): r for r in store.results_for(session, new)}
@@ -275,7 +275,7 @@ def check_changes(session: Session, old: Revision | None, new: Revision) -> list
 
 def check_counts(session: Session, rev: Revision) -> dict[str, int]:
     """Number of stored results per status (newest per chart and check)."""
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     counts: dict[str, int] = {}
     for r in store.results_for(session, rev):
@@ -293,7 +293,7 @@ def diff(session: Session, slug: str, rev_a: str | None = None, rev_b: str | Non
     No revision given: the latest against its predecessor. One: that revision
     against the latest. Two: the first against the second.
     """
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     if rev_b is None:
         new = store.revision(session, slug, None)
@@ -314,10 +314,10 @@ def revert(session: Session, slug: str, rev: str, *, author: str, message: str =
            tool_version: str = "") -> tuple[Revision, Any]:
     """Store revision ``rev`` of ``slug`` again as the newest revision (nothing is deleted).
 
-    Returns the restored old revision and the :class:`gravicat.store.Stored` outcome;
+    Returns the restored old revision and the :class:`gravicat.store.revisions.Stored` outcome;
     its ``action`` is ``unchanged`` when the latest revision already has that content.
     """
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     old = store.revision(session, slug, rev)
     latest = store.revision(session, slug, None)
@@ -331,7 +331,7 @@ def revert(session: Session, slug: str, rev: str, *, author: str, message: str =
 
 def history_rows(session: Session, slug: str) -> list[dict[str, Any]]:
     """One dict per revision, newest first: number, hash, date, author, source, message, summary, status."""
-    from gravicat import store
+    from gravicat.store import revisions as store
 
     revs = revisions(session, slug)
     statuses = store.status_by_revision(session, [r.id for r in revs])

@@ -15,8 +15,8 @@ from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
 from gravicat.errors import Conflict, InputError, NotFound
-from gravicat.metricfile import MetricDocument, validate
-from gravicat.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
+from gravicat.format.metricfile import MetricDocument, validate
+from gravicat.store.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
 
 
 @dataclass(frozen=True)
@@ -260,7 +260,7 @@ def record_to_json(row: CheckRecord) -> dict:
 
 
 def iter_bundled_documents() -> Iterator[MetricDocument]:
-    from gravicat.metricfile import decode_toml
+    from gravicat.format.metricfile import decode_toml
 
     for path in bundled_files():
         raw = decode_toml(path)

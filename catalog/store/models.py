@@ -191,7 +191,7 @@ class CheckRecord(Base):
 
 
 class JobState(enum.StrEnum):
-    """Where a verification job is: see :mod:`gravicat.queue` for the life of a job."""
+    """Where a verification job is: see :mod:`gravicat.api.queue` for the life of a job."""
 
     PENDING = "pending"  # waiting for a worker (new, retried, or released)
     RUNNING = "running"  # claimed by a worker holding a lease until ``lease_until``

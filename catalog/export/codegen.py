@@ -94,7 +94,7 @@ def parse_assignments(text: str, option: str, allowed: Mapping[str, Any], env: M
     result are these names); ``env`` maps the names an expression may use to numbers (``pi`` is
     always allowed). Values are exact sympy numbers (decimals become fractions).
     """
-    from gravicat.expr import Names, check_expression, to_sympy
+    from gravicat.format.expr import Names, check_expression, to_sympy
 
     out: dict[str, Any] = {}
     for name, value in split_assignments(text, option):
@@ -121,7 +121,7 @@ def real_number(value, option: str, name: str, text: str):
 
 
 def _relations(doc, pname: str, symbols: Mapping[str, Any]):
-    from gravicat.expr import Names, check_relation, relation_to_sympy
+    from gravicat.format.expr import Names, check_relation, relation_to_sympy
 
     text = doc.data["parameters"][pname].get("range")
     if not text:
@@ -318,7 +318,7 @@ class Layered:
     metric: Any
     functions: dict
     env: dict  # name -> sympy object (parameters, coordinates, definition symbols)
-    names: Any  # gravicat.expr.Names for parsing more expressions of this chart
+    names: Any  # gravicat.format.expr.Names for parsing more expressions of this chart
 
     def substituted(self, values: Mapping[Any, Any]) -> Layered:
         if not values:
@@ -328,7 +328,7 @@ class Layered:
 
     def relations(self, text: str, source: str, field: str) -> list[tuple[Any, str, Any]]:
         """A (possibly chained) inequality as ``[(left, op, right), ...]`` in this chart's symbols."""
-        from gravicat.expr import check_relation, to_sympy
+        from gravicat.format.expr import check_relation, to_sympy
 
         return [(to_sympy(r.left, self.env, self.functions), r.op, to_sympy(r.right, self.env, self.functions))
                 for r in check_relation(text, self.names, source=source, field=field)]
@@ -345,8 +345,8 @@ def layered_chart(doc, chart: str) -> Layered:
     """Parse one chart with its definitions kept as symbols (the document is already validated)."""
     import sympy
 
-    from gravicat.expr import Names, check_expression, to_sympy
-    from gravicat.metricfile import FUNCTION_DECL, parameter_symbols
+    from gravicat.format.expr import Names, check_expression, to_sympy
+    from gravicat.format.metricfile import FUNCTION_DECL, parameter_symbols
 
     c = doc.data["charts"][chart]
     base = f"charts.{chart}"
@@ -445,7 +445,7 @@ def prepare(document, context: Mapping[str, Any], exporter, *, numeric: bool) ->
     """
     import sympy
 
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
 
     chart = chart_name(document, context)
     prov = provenance(document, context, exporter, chart)
@@ -771,14 +771,14 @@ def relation_margin(rel):
 def christoffel_symbols(spec, budget: float = DEFAULT_BUDGET) -> dict:
     """Nonzero Gamma^a_bc (b <= c) as factored sympy expressions, computed in a child process.
 
-    Uses the shared exact engine (:class:`gravicat.geometry.Geometry`). A chart whose symbols do
+    Uses the shared exact engine (:class:`gravicat.engine.geometry.Geometry`). A chart whose symbols do
     not reduce within ``budget`` seconds gives a one-line CatalogError (nothing is printed half).
     """
     import multiprocessing
 
     def work(conn):
         try:
-            from gravicat.geometry import Geometry
+            from gravicat.engine.geometry import Geometry
 
             geo = Geometry(spec)
             gam = geo.christoffel

@@ -1,5 +1,5 @@
 """Running verifiers: each chart is built and prepared once, every verifier gets the same
-prepared :class:`gravicat.geometry.Geometry`, and the runner (not the verifier) isolates
+prepared :class:`gravicat.engine.geometry.Geometry`, and the runner (not the verifier) isolates
 crashes, times each verifier and stamps its name and version on every result.
 """
 
@@ -13,7 +13,7 @@ from typing import Any
 
 from gravicat.checks import CheckResult, Method, Status, worst
 from gravicat.errors import InputError
-from gravicat.metricfile import MetricDocument
+from gravicat.format.metricfile import MetricDocument
 
 DEFAULT_BUDGET = 20.0  # seconds per symbolic proof before a check is reported inconclusive
 
@@ -36,7 +36,7 @@ class ChartReport:
 
 def make_resolver(docs: Mapping[str, MetricDocument]) -> Callable[[str], Any]:
     """``resolve("ENTRY:CHART") -> ChartSpec | None`` over ``docs`` (id -> document), cached."""
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
 
     cache: dict[str, Any] = {}
 
@@ -87,7 +87,7 @@ def check_chart(doc: MetricDocument, chart: str, verifiers: Iterable[Any], *,
                 resolve: Callable[[str], Any] | None = None, budget: float = DEFAULT_BUDGET,
                 seed: int = 0) -> ChartReport:
     """Build ``chart`` of ``doc`` once and run every verifier on the shared prepared geometry."""
-    from gravicat.metricfile import build_chart
+    from gravicat.format.metricfile import build_chart
 
     start = time.perf_counter()
     spec = build_chart(doc, chart, resolve)
@@ -110,7 +110,7 @@ def _collect_into(report: ChartReport) -> Callable[[tuple], None]:
 def _run_spec(spec, verifiers: list[Any], budget: float, seed: int, emit: Callable[[tuple], None]) -> None:
     """Prepare a built chart and run the verifiers, reporting as it goes: ``("path", PATH)`` once
     the chart is prepared, then ``("results", K, [CheckResult, ...])`` after the K-th verifier."""
-    from gravicat.geometry import Geometry
+    from gravicat.engine.geometry import Geometry
 
     geometry = Geometry(spec, budget=budget, seed=seed)
     emit(("path", geometry.path))
@@ -151,9 +151,9 @@ def check_document(doc: MetricDocument, verifiers: list[Any], *, charts: Iterabl
     names = list(charts) if charts else doc.chart_names
     if jobs is None or len(names) < 2:
         return [check_chart(doc, c, verifiers, resolve=resolve, budget=budget) for c in names]
-    import gravicat.geometry  # noqa: F401 - sympy and flint, imported once here for every child
-    from gravicat import _fork
-    from gravicat.metricfile import build_chart
+    import gravicat.engine.geometry  # noqa: F401 - sympy and flint, imported once here for every child
+    from gravicat.engine import fork as _fork
+    from gravicat.format.metricfile import build_chart
 
     verifiers = list(verifiers)
     # Built here, one after the other (cheap): a chart that cannot be built raises here exactly as
@@ -237,7 +237,7 @@ class BundledDocuments(Mapping[str, MetricDocument]):
 
     ``docs.get("kerr")`` decodes and validates ``catalog/data/spacetimes/kerr.toml`` only (a
     bundled file is named after its id); iterating, ``len()`` or a lookup of an id that is not
-    a file name read every file, in file-name order, as :func:`gravicat.store.iter_bundled_documents`
+    a file name read every file, in file-name order, as :func:`gravicat.store.revisions.iter_bundled_documents`
     does (a later file with the same id wins, as in a dict built from that iterator).
     The SQL store is never imported, so resolving a ``reduces-to`` target of a file costs one
     small file, not the whole catalogue.
@@ -269,7 +269,7 @@ class BundledDocuments(Mapping[str, MetricDocument]):
 
     @staticmethod
     def _read(path) -> MetricDocument:
-        from gravicat.metricfile import decode_toml, validate
+        from gravicat.format.metricfile import decode_toml, validate
 
         raw = decode_toml(Path(str(path)))
         return validate(raw.data, f"bundled:{path.name}")
@@ -296,7 +296,7 @@ class BundledDocuments(Mapping[str, MetricDocument]):
             return found
         if key in self._bundled or self._complete:
             return self._bundled.get(key)
-        from gravicat.metricfile import SLUG
+        from gravicat.format.metricfile import SLUG
 
         if isinstance(key, str) and SLUG.match(key):
             path = self._folder() / f"{key}.toml"

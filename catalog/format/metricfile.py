@@ -8,7 +8,7 @@ canonical JSON, so the same spacetime written with other spacing, key order
 or tag order has the same hash.
 
 Validation needs no sympy; :func:`build_chart` turns one chart into sympy
-objects (:class:`gravicat.chartspec.ChartSpec`) for the verifiers.
+objects (:class:`gravicat.format.chartspec.ChartSpec`) for the verifiers.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import Any
 
 from gravicat.errors import InputError
-from gravicat.expr import (
+from gravicat.format.expr import (
     RESERVED,
     Names,
     canonical,
@@ -370,7 +370,7 @@ def _check_defaults(v: _V, parameters: dict[str, dict], names: Names, written: d
     """
     from fractions import Fraction
 
-    from gravicat.expr import NotReal, Undecided, holds, number
+    from gravicat.format.expr import NotReal, Undecided, holds, number
 
     trees = {k: check_expression(p["default"], names, source=v.source, field=f"parameters.{k}.default")
              for k, p in parameters.items() if "default" in p}
@@ -684,8 +684,8 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
     """The sympy form of one chart (default: the first). Raises InputError for a bad line element."""
     import sympy
 
-    from gravicat.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
-    from gravicat.expr import relation_to_sympy, to_sympy
+    from gravicat.format.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
+    from gravicat.format.expr import relation_to_sympy, to_sympy
 
     data = doc.data
     chart = chart or next(iter(data["charts"]))

@@ -46,7 +46,7 @@ vanish to rounding.
 
 Units: the model works in the chart's units (G = c = 1). :func:`resolve_parameters`
 with ``units="si"`` reads mass parameters as GM in m^3/s^2 and every other
-parameter and radius in metres, converting with :mod:`gravicat.units`;
+parameter and radius in metres, converting with :mod:`gravicat.physics.units`;
 :func:`survey` converts the report back to SI.
 """
 
@@ -59,8 +59,8 @@ from dataclasses import dataclass, field
 from functools import cached_property
 from typing import Any
 
-from gravicat import units as U
 from gravicat.errors import InputError
+from gravicat.physics import units as U
 
 DIRECTIONS = ("prograde", "retrograde")
 _ORBIT_KEYS = ("disc", "Omega", "norm", "ut", "energy", "L", "dE", "dL", "dOmega")
@@ -101,7 +101,7 @@ def parse_number(text: str, *, source: str, field: str, env: Mapping[str, Any] |
     """A real, finite number from untrusted text (whitelist parser; ``env`` names allowed)."""
     import sympy
 
-    from gravicat.expr import Names, check_expression, to_sympy
+    from gravicat.format.expr import Names, check_expression, to_sympy
 
     env = dict(env or {})
     tree = check_expression(text, Names(symbols=frozenset(env)), source=source, field=field)
@@ -143,7 +143,7 @@ def resolve_parameters(doc, spec, settings: Iterable[str] = (), *, units: str = 
     """
     import sympy
 
-    from gravicat.expr import Names, check_relation, relation_to_sympy
+    from gravicat.format.expr import Names, check_relation, relation_to_sympy
 
     if units not in U.SYSTEMS:
         raise InputError("--units", None, f"'{units}' is not one of {', '.join(U.SYSTEMS)}")
@@ -1102,7 +1102,7 @@ def compare_clocks(model: Equatorial, orbit_radius: float, surface_radius: float
     """Rate of a clock on a circular equatorial orbit relative to a clock on the rotating surface.
 
     All inputs in the chart's geometrized units (``surface_rotation`` in 1/length);
-    use :mod:`gravicat.units` for SI. Raises InputError when either clock cannot exist.
+    use :mod:`gravicat.physics.units` for SI. Raises InputError when either clock cannot exist.
     """
     orbit = model.circular(orbit_radius, direction)
     if not orbit["exists"]:
