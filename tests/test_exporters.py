@@ -467,7 +467,7 @@ def test_header_signature_has_the_chart_dimension(exporter, tmp_path):
     ("M=1,a=pi", "a", "outside the range"),
     ("M=-1", "M", "declared positive"),
     ("J=1", "J", "not a parameter"),
-    ("M=1,M=2", "M", "given twice"),
+    ("M=1,M=2", "M", "given more than once"),
     ("M", None, "not NAME=VALUE"),
 ])
 def test_bad_parameters_are_one_line_errors(params, field, words):

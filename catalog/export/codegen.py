@@ -4,8 +4,8 @@ The exporter plugins (``latex``, ``python``, ``c``) only print; this module
 does the rest, so every target says the same thing about where a file came
 from and refuses the same things:
 
-* :func:`parse_assignments` reads ``NAME=EXPR,NAME=EXPR`` option text (``--params
-  M=1,a=0.9``, ``--from r=10,theta=pi/2``) through the whitelist parser;
+* :func:`~gravicat.format.assign.parse_assignments` (re-exported here) reads ``NAME=EXPR,NAME=EXPR``
+  option text (``--params M=1,a=0.9``, ``--from r=10,theta=pi/2``) through the whitelist parser;
 * :func:`fixed_parameters` turns the ``params`` of an export context into exact
   values, checked against the declared assumptions and ranges;
 * :class:`Provenance` is the header of every generated file (entry, chart,
@@ -44,6 +44,10 @@ from typing import Any
 
 from gravicat.errors import CatalogError, CheckFailed, InputError
 
+# The NAME=VALUE parser lives in the format room (one parser for every command); these names stay
+# importable from here for older callers.
+from gravicat.format.assign import parse_assignments, real_number, split_assignments  # noqa: F401
+
 #: statuses under which a revision may be exported without ``allow_unverified``
 ACCEPTED = ("pass", "skipped", "inconclusive")
 DEFAULT_BUDGET = 60.0
@@ -53,68 +57,6 @@ def conventions(n: int) -> str:
     """The conventions line of a header for an ``n``-dimensional chart: Lorentzian, mostly plus
     (one minus sign and n - 1 plus signs, what the ``signature`` verifier checks), G = c = 1."""
     return f"signature ({','.join(['-'] + ['+'] * (n - 1))}), G = c = 1"
-
-
-# --------------------------------------------------------------------------- option text
-
-
-def split_assignments(text: str, option: str) -> list[tuple[str, str]]:
-    """``"a=1,b=pi/2"`` -> ``[("a", "1"), ("b", "pi/2")]`` (commas inside parentheses kept)."""
-    parts, depth, cur = [], 0, ""
-    for ch in text:
-        if ch == "(":
-            depth += 1
-        elif ch == ")":
-            depth -= 1
-        if ch == "," and depth == 0:
-            parts.append(cur)
-            cur = ""
-        else:
-            cur += ch
-    parts.append(cur)
-    out = []
-    for part in parts:
-        if not part.strip():
-            continue
-        name, eq, value = part.partition("=")
-        name, value = name.strip(), value.strip()
-        if not eq or not name or not value:
-            raise InputError(option, None, f"'{part.strip()}' is not NAME=VALUE (expected e.g. M=1,a=0.9)")
-        if any(n == name for n, _ in out):
-            raise InputError(option, name, "given twice")
-        out.append((name, value))
-    return out
-
-
-def parse_assignments(text: str, option: str, allowed: Mapping[str, Any], env: Mapping[str, Any],
-                      *, kind: str = "name") -> dict[str, Any]:
-    """Parse ``NAME=EXPR,...`` with the whitelist parser; every value must be a real number.
-
-    ``allowed`` maps the names that may be assigned to their sympy symbols (the keys of the
-    result are these names); ``env`` maps the names an expression may use to numbers (``pi`` is
-    always allowed). Values are exact sympy numbers (decimals become fractions).
-    """
-    from gravicat.format.expr import Names, check_expression, to_sympy
-
-    out: dict[str, Any] = {}
-    for name, value in split_assignments(text, option):
-        if name not in allowed:
-            choices = ", ".join(allowed) or "none"
-            raise InputError(option, name, f"'{name}' is not a {kind} here (choose from: {choices})")
-        scope = {**env, **{k: v for k, v in out.items()}}
-        tree = check_expression(value, Names(symbols=frozenset(scope)), source=option, field=name)
-        out[name] = real_number(to_sympy(tree, scope), option, name, value)
-    return out
-
-
-def real_number(value, option: str, name: str, text: str):
-    """``value`` if it is a finite real number, else an InputError naming ``option`` and ``name``."""
-    if not value.is_number:
-        raise InputError(option, name, f"'{text}' is not a number")
-    approx = complex(value.evalf(30))
-    if approx.imag != 0 or approx.real != approx.real or abs(approx.real) == float("inf"):
-        raise InputError(option, name, f"'{text}' is not a finite real number")
-    return value
 
 
 # --------------------------------------------------------------------------- parameters
@@ -153,15 +95,16 @@ def fixed_parameters(doc, spec, params, option: str = "--params") -> dict[Any, A
     if params is None or (isinstance(params, str) and params.strip().lower() in ("", "symbolic")):
         return {}
     if isinstance(params, str):
-        values = parse_assignments(params, option, symbols, {}, kind="parameter")
+        values = parse_assignments(params, option, symbols, {}, kind="parameter", owner=doc.id)
     elif isinstance(params, Mapping):
         values = {}
         for name, value in params.items():
             if name not in symbols:
-                raise InputError(option, name, f"'{name}' is not a parameter of {doc.id} "
+                raise InputError(option, name, f"not a parameter of {doc.id} "
                                                f"(parameters: {', '.join(symbols) or 'none'})")
             if isinstance(value, str):
-                values.update(parse_assignments(f"{name}={value}", option, symbols, values, kind="parameter"))
+                values.update(parse_assignments(f"{name}={value}", option, symbols, values, kind="parameter",
+                                                owner=doc.id))
             else:
                 num = sympy.Rational(str(value)) if isinstance(value, float) else sympy.sympify(value)
                 values[name] = real_number(num, option, name, str(value))
