@@ -20,7 +20,7 @@ import pytest
 import sympy as sp
 
 from gravicat.engine.geometry import Geometry
-from gravicat.engine.ratfun import Field, Unsupported, settle_signs, unsettled
+from gravicat.engine.ratfun import Elem, Field, Unsupported, settle_signs, unsettled
 from gravicat.engine.runner import bundled_documents, check_chart, make_resolver
 from gravicat.format.metricfile import build_chart, load_file
 
@@ -259,3 +259,22 @@ def test_abs_settled_by_the_domain_keeps_the_fast_path(tmp_path):
     report, res = _check(doc, "field-equations")
     assert report.path == "flint"
     assert res["field-equations"].status.value == "pass"
+
+
+@pytest.mark.parametrize("expr", [
+    r**3 * M - 2 * r * M**2 + 7,
+    (r - 2 * M) ** 4 * x + r * y**2,
+    M**2 + 5,  # free of r: only the power 0
+])
+def test_coefficients_in_one_generator_match_sympy(expr):
+    """Field.coefficients_in (the one helper roots and the limits verifier read a polynomial in one
+    generator with) against sympy's own Poly.all_coeffs (reference library) at every power."""
+    F = Field([r, x, y], [M], [expr, r])
+    el = F.element(expr)
+    assert el.is_plain() and el.d == F.pone
+    j = next(g.index for g in F.base if g.sym == r)
+    got = F.coefficients_in(el.num0(), j)
+    want = sp.Poly(sp.expand(expr), r).all_coeffs()[::-1]
+    assert set(got) == {k for k, c in enumerate(want) if c != 0}
+    for k, c in got.items():
+        assert sp.expand(F.to_sympy(Elem(F, {0: c}, F.pone)) - want[k]) == 0

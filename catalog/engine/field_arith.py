@@ -227,6 +227,19 @@ class FieldArith:
             i += 1
         return out, den * extra
 
+    def coefficients_in(self, p, j: int) -> dict:
+        """The coefficients of the base polynomial ``p`` (an ``fmpz_mpoly`` of this field) in base
+        generator number ``j``: ``{power: polynomial free of generator j}`` (powers that occur only).
+        The one way to read a polynomial as a polynomial in one generator (roots, limits)."""
+        out: dict = {}
+        for exps, c in p.terms():
+            e = exps[j]
+            mono = list(exps)
+            mono[j] = 0
+            term = self.ctx.from_dict({tuple(mono): c})
+            out[e] = out[e] + term if e in out else term
+        return out
+
     # -- opaque sub-expressions ----------------------------------------------
     def alias_value(self, j: int) -> Elem:
         """The explicit value of alias generator number ``j`` (the derivative its index says)."""

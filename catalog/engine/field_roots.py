@@ -288,14 +288,8 @@ class FieldRoots:
         """(w, N) with ``p w = N`` modulo ``rho**q - P``, ``N`` free of ``rho``: ``w`` is the first
         column of the adjugate of the multiplication-by-``p`` matrix on ``1, rho, ..., rho**(q-1)``
         and ``N`` its determinant (the norm)."""
-        j, q = rg.index, rg.q
-        coeffs = {}
-        for exps, c in p.terms():
-            e = exps[j]
-            mono = list(exps)
-            mono[j] = 0
-            t = self.ctx.from_dict({tuple(mono): c})
-            coeffs[e] = coeffs[e] + t if e in coeffs else t
+        q = rg.q
+        coeffs = self.coefficients_in(p, rg.index)
         a = [Elem(self, {0: coeffs[k]}, self.pone) if k in coeffs else self.zero for k in range(q)]
         Pel = Elem(self, {0: rg.P}, self.pone)
         # column k: p rho**k = sum_i a_i rho**(i+k), rho**q = P
