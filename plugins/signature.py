@@ -2,7 +2,8 @@
 ((-,+,+,+) in four dimensions; the printed signature always has the chart's dimension), at
 sampled points of the domain.
 
-The inertia of g at a point is certain (:func:`gravicat.engine.geometry.inertia`): the
+The inertia of g at a point is certain (:func:`gravicat.engine.curvature.inertia`; the
+Lorentzian counts come from :mod:`gravicat.physics.claims`, shared with repair): the
 characteristic polynomial of the symmetric matrix has only real roots, so
 Descartes' rule of signs counts its positive and negative eigenvalues, in exact
 rationals or, at points with values that are not rational (pi, exp, nested
@@ -29,13 +30,16 @@ from gravicat import hookimpl
 class SignatureCheck:
     name = "signature"
     version = "2"
+    screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
     def check(self, geometry):
-        from gravicat.engine.geometry import inertia
+        from gravicat.engine.curvature import inertia
+        from gravicat.physics.claims import lorentzian
         from gravicat.plugins._common import point_matrix, result, signature_text, zero_sets_note
 
         n = geometry.n
-        lorentz = signature_text(1, 0, n - 1)
+        want = lorentzian(n)
+        lorentz = signature_text(*want)
         names = [str(c) for c in geometry.coords]
         funcs = ", ".join(str(f) for f in geometry.spec.functions)
         seen_sign = {i: set() for i in range(n)}
@@ -54,7 +58,7 @@ class SignatureCheck:
             except (ValueError, ZeroDivisionError):  # a value that is not a finite number
                 undecided.append((pd, None))
                 continue
-            if counts == (1, 0, n - 1):
+            if counts == want:
                 good.append(pd)
                 approx += not certain
             elif not certain:
