@@ -148,11 +148,11 @@ def make_cases(seed: int, entries: list[str] | None, minimum: int):
 def _case(case, vs, docs, jobs, budget, send) -> None:
     """One corrupted metric: plain check (timed), then repair, then the comparison with the original."""
     from gravicat.engine.runner import check_chart, make_resolver
-    from gravicat.repair import REPAIR_VERIFIERS, find_repairs
+    from gravicat.repair import find_repairs, screens_repairs
 
     entry, kind, chart, fld, _text, doc, bad = case
     t0 = time.perf_counter()
-    rep = check_chart(bad, chart, [v for v in vs.values() if v.name in REPAIR_VERIFIERS],
+    rep = check_chart(bad, chart, [v for v in vs.values() if screens_repairs(v)],
                       resolve=make_resolver({**docs, bad.id: bad}), budget=20.0)
     t_check = time.perf_counter() - t0
     broke = any(r.status.value == "fail" and (r.check in ("field-equations", "signature")
@@ -170,40 +170,28 @@ def _case(case, vs, docs, jobs, budget, send) -> None:
 
 
 def _run_case(case, vs, docs, jobs, budget, timeout) -> dict:
-    """Run a case in a forked child with a time limit (the engine's own check can be slow on a slip)."""
-    import multiprocessing
+    """Run a case in a forked child with a time limit (the engine's own check can be slow on a slip),
+    through the one child-process runner (:func:`gravicat.engine.fork.run_forked`)."""
+    from gravicat.engine.fork import run_forked
 
     entry, kind, chart, fld = case[:4]
-    base = {"entry": entry, "kind": kind, "chart": chart, "field": fld, "broke": False, "recovered": False,
-            "false": 0, "seconds": 0.0, "check_seconds": 0.0, "note": ""}
-    ctx = multiprocessing.get_context("fork")
-    recv, send = ctx.Pipe(duplex=False)
-    proc = ctx.Process(target=_case, args=(case, vs, docs, jobs, budget, send))
+    row = {"entry": entry, "kind": kind, "chart": chart, "field": fld, "broke": False, "recovered": False,
+           "false": 0, "seconds": 0.0, "check_seconds": 0.0, "note": ""}
+
+    class _Send:  # what _case sends, emitted to the parent at once
+        def __init__(self, emit):
+            self.send = emit
+
     t0 = time.perf_counter()
-    proc.start()
-    send.close()
-    row = dict(base)
-    try:
-        while True:
-            left = timeout - (time.perf_counter() - t0)
-            if left <= 0 or not recv.poll(left):
-                row["timeout"] = True
-                row["seconds"] = time.perf_counter() - t0
-                row["note"] = f"did not finish within {timeout:g} s"
-                break
-            try:
-                row.update(recv.recv())
-            except EOFError:
-                row["timeout"] = True
-                row["note"] = "the case process ended without a result"
-                break
-            if "recovered" in row and "candidates" in row:
-                break
-    finally:
-        if proc.is_alive():
-            proc.kill()
-        proc.join(1)
-        recv.close()
+    out = run_forked(lambda emit: _case(case, vs, docs, jobs, budget, _Send(emit)), cpu_seconds=timeout,
+                     wall_seconds=timeout)
+    for item in out.items:
+        row.update(item)
+    if not ("recovered" in row and "candidates" in row):
+        row["timeout"] = True
+        row["seconds"] = time.perf_counter() - t0
+        row["note"] = (f"did not finish within {timeout:g} s" if out.limit else
+                       out.error or "the case process ended without a result")
     return row
 
 
