@@ -67,7 +67,6 @@ from gravicat.repair.model import _Model, _PointEnv, _Target
 from gravicat.repair.reports import (
     HYPOTHESIS_NOTE,
     KINDS,
-    REPAIR_VERIFIERS,
     SMALL_FACTORS,
     ChartRepair,
     EditInfo,
@@ -82,7 +81,6 @@ from gravicat.repair.writing import Written, write_suggestion
 __all__ = [
     "KINDS",
     "SMALL_FACTORS",
-    "REPAIR_VERIFIERS",
     "HYPOTHESIS_NOTE",
     "EditInfo",
     "Suggestion",

@@ -14,9 +14,6 @@ KINDS = ("sign", "factor-2", "small-factor", "exponent", "trig", "swap", "drop-t
 #: The factors and divisors of ``small-factor`` (a dropped or stray /3 of a cosmological constant, a 4 or 6 of a
 #: charge or a mass term); 2 is ``factor-2``. Offered where ``factor-2`` is, except on a bare number.
 SMALL_FACTORS = (3, 4, 6)
-#: The built-in verifiers that set ``screens_repairs = True`` today (for messages and benchmarks only:
-#: repair selects the verifiers it runs by that attribute, never by name; see :func:`screens_repairs`).
-REPAIR_VERIFIERS = ("structure", "signature", "field-equations", "limits")
 HYPOTHESIS_NOTE = ("Each suggestion is a hypothesis: several metrics can satisfy the same claim, so check the "
                    "repaired expression against the source paper before relying on it.")
 

@@ -159,7 +159,7 @@ def _run_limited(verifiers: list, geometry, seconds: float) -> list[CheckResult]
     for v in verifiers[done:]:
         out.append(CheckResult(check=v.name, status=Status.INCONCLUSIVE, method=Method.NONE,
                                detail=f"not finished within {seconds:g} s (the time limit repair gives each "
-                                      "verifier outside structure, signature, field-equations and limits)",
+                                      "verifier that does not set screens_repairs)",
                                verifier=v.name, version=v.version))
     return out
 
