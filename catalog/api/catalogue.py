@@ -81,7 +81,7 @@ class Verified:
     revision: str
     status: str
     computed: int
-    checks: list[dict[str, Any]] = field(default_factory=list)
+    checks: list[dict[str, Any]] = field(default_factory=list, repr=False)
 
     def to_json(self) -> dict[str, Any]:
         return {"metric": self.id, "revision": self.revision, "status": self.status, "computed": self.computed,
