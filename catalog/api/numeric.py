@@ -27,10 +27,8 @@ if TYPE_CHECKING:
 
 
 def _split(items: Iterable[str], option: str) -> list[tuple[str, str]]:
-    try:
-        from gravicat.format.assign import split_assignments
-    except ImportError:  # pragma: no cover - before the one parser moved to the format room
-        from gravicat.export.codegen import split_assignments
+    from gravicat.format.assign import split_assignments
+
     out = []
     for item in items:
         if not isinstance(item, str):
