@@ -18,7 +18,9 @@ stopped later); its return value is the task's ``value``. The parent gets a :cla
 * ``died`` - the child ended without a result for another reason (``exitcode`` says how).
 
 Limits: ``cpu_seconds`` is CPU time of the child itself (so a loaded machine does not turn work
-into a timeout), rounded up to whole seconds (the kernel's granularity); ``wall_seconds`` is a
+into a timeout), enforced to the fraction of a second by a profiling timer (``ITIMER_PROF``; it
+acts when the interpreter next runs), with the kernel's whole-second ``RLIMIT_CPU`` as a backstop
+inside long C calls; ``wall_seconds`` is a
 backstop in elapsed time (a child that sleeps, or waits on a grandchild). Each child leads its
 own process group, and a stopped child is killed with its whole group, so grandchildren (a
 verifier's own time-limited proofs) do not outlive it. Children are not daemonic, so the task
@@ -273,6 +275,15 @@ def _limit_cpu(seconds: float | None) -> None:
         pass
     if seconds is None:
         return
+    # the exact budget: a profiling timer counts the same CPU time (user + system); at its end the
+    # child ends itself by the signal of the kernel's cap (SIGXCPU, default action), as soon as the
+    # interpreter runs again; the kernel's whole-second cap is the backstop inside long C calls
+    try:
+        signal.signal(signal.SIGXCPU, signal.SIG_DFL)
+        signal.signal(signal.SIGPROF, lambda *_: os.kill(os.getpid(), signal.SIGXCPU))
+        signal.setitimer(signal.ITIMER_PROF, max(float(seconds), 0.001))
+    except (AttributeError, ValueError, OSError):  # pragma: no cover - no profiling timer here
+        pass
     cpu = max(1, math.ceil(seconds))
     try:
         _soft, hard = resource.getrlimit(resource.RLIMIT_CPU)
