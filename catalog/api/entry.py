@@ -172,22 +172,27 @@ class Entry:
         return [self.chart(n) for n in self.chart_names]
 
     # -- checks --------------------------------------------------------------
-    def _resolver(self):
-        """``reduces-to`` targets in the project's one order: this document, the catalogue, the bundled files."""
+    def _resolver(self, catalogue: Catalogue | None = None):
+        """``reduces-to`` targets in the project's one order: this document, the catalogue (the
+        entry's own, else ``catalogue``), the bundled files."""
         from gravicat.engine.runner import bundled_documents, make_resolver
 
         docs = bundled_documents()
-        if self.catalogue is not None:
-            docs = docs.with_catalogue(self.catalogue._limit_targets(self.document))
+        catalogue = self.catalogue or catalogue
+        if catalogue is not None:
+            docs = docs.with_catalogue(catalogue._limit_targets(self.document))
         return make_resolver(docs.with_document(self.document))
 
     def check(self, *, charts: list[str] | None = None, only: list[str] | None = None,
-              budget: float = 20.0, jobs: int | None = None) -> CheckResults:
+              budget: float = 20.0, jobs: int | None = None, catalogue: Catalogue | None = None) -> CheckResults:
         """Verify every chart (or ``charts``) exactly as ``gravicat check`` does; nothing is stored.
 
         ``only`` restricts to these verifiers; ``budget`` is CPU seconds per symbolic proof; with
         more than one chart each chart runs in its own process under a CPU-time cap (``jobs`` at a
-        time, default: the number of cores). Use :meth:`gravicat.Catalogue.verify` to store results.
+        time, default: the number of cores). A limit naming another entry is looked up in this
+        document, then the entry's catalogue (for an entry read from a file: ``catalogue`` if
+        given, as ``gravicat check FILE`` uses the user's), then the bundled catalogue. Use
+        :meth:`gravicat.Catalogue.verify` to store results.
         """
         from gravicat.engine.fork import default_jobs
         from gravicat.engine.runner import check_document, select_verifiers
@@ -196,9 +201,9 @@ class Entry:
         for name in charts or ():
             self.chart(name)  # NotFound for an unknown chart
         chosen = select_verifiers(verifiers(self.plugins), only)
-        resolve = self._resolver()
-        if self.catalogue is not None:
-            self.catalogue._release()  # no pooled connection is inherited by forked children
+        resolve = self._resolver(catalogue)
+        if (self.catalogue or catalogue) is not None:
+            (self.catalogue or catalogue)._release()  # no pooled connection is inherited by forked children
         reports = check_document(self.document, chosen, charts=charts, resolve=resolve, budget=budget,
                                  jobs=jobs or default_jobs())
         return CheckResults(self.id, reports)
