@@ -8,7 +8,6 @@ from __future__ import annotations
 import time
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 from gravicat.checks import CheckResult, Method, Status, worst
@@ -237,7 +236,7 @@ class BundledDocuments(Mapping[str, MetricDocument]):
 
     ``docs.get("kerr")`` decodes and validates ``catalog/data/spacetimes/kerr.toml`` only (a
     bundled file is named after its id); iterating, ``len()`` or a lookup of an id that is not
-    a file name read every file, in file-name order, as :func:`gravicat.store.revisions.iter_bundled_documents`
+    a file name read every file, in file-name order, as :func:`gravicat.format.bundled.iter_bundled_documents`
     does (a later file with the same id wins, as in a dict built from that iterator).
     The SQL store is never imported, so resolving a ``reduces-to`` target of a file costs one
     small file, not the whole catalogue.
@@ -261,27 +260,15 @@ class BundledDocuments(Mapping[str, MetricDocument]):
         out._bundled, out._complete = self._bundled, self._complete
         return out
 
-    @staticmethod
-    def _folder():
-        from importlib.resources import files
-
-        return files("gravicat.data.spacetimes")
-
-    @staticmethod
-    def _read(path) -> MetricDocument:
-        from gravicat.format.metricfile import decode_toml, validate
-
-        raw = decode_toml(Path(str(path)))
-        return validate(raw.data, f"bundled:{path.name}")
-
     def _read_all(self) -> None:
         if self._complete:
             return
+        from gravicat.format.bundled import bundled_files, read_bundled
+
         found: dict[str, MetricDocument] = {}
-        for path in sorted((Path(str(p)) for p in self._folder().iterdir() if p.name.endswith(".toml")),
-                           key=lambda p: p.name):
+        for path in bundled_files():
             known = self._bundled.get(path.stem)
-            doc = known if known is not None and known.source == f"bundled:{path.name}" else self._read(path)
+            doc = known if known is not None and known.source == f"bundled:{path.name}" else read_bundled(path)
             found.pop(doc.id, None)  # a later file with the same id wins and takes the later place
             found[doc.id] = doc
         self._bundled.clear()
@@ -296,15 +283,14 @@ class BundledDocuments(Mapping[str, MetricDocument]):
             return found
         if key in self._bundled or self._complete:
             return self._bundled.get(key)
-        from gravicat.format.metricfile import SLUG
+        from gravicat.format.bundled import bundled_path, read_bundled
 
-        if isinstance(key, str) and SLUG.match(key):
-            path = self._folder() / f"{key}.toml"
-            if path.is_file():
-                doc = self._read(path)
-                if doc.id == key:
-                    self._bundled[key] = doc
-                    return doc
+        path = bundled_path(key)
+        if path is not None:
+            doc = read_bundled(path)
+            if doc.id == key:
+                self._bundled[key] = doc
+                return doc
         self._read_all()  # not named after its id (or no such file): read them all, as before
         return self._bundled.get(key)
 

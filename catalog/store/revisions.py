@@ -6,16 +6,14 @@ so a failed import of several files writes nothing at all.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from dataclasses import dataclass
-from importlib.resources import files
-from pathlib import Path
 
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
 from gravicat.errors import Conflict, InputError, NotFound
-from gravicat.format.metricfile import MetricDocument, validate
+from gravicat.format.bundled import bundled_files, iter_bundled_documents  # noqa: F401  (the one reader)
+from gravicat.format.metricfile import MetricDocument
 from gravicat.store.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
 
 
@@ -27,12 +25,6 @@ class Stored:
     action: str
     number: int
     hash: str
-
-
-def bundled_files() -> list[Path]:
-    """The reference catalogue shipped inside the package, sorted by file name."""
-    folder = files("gravicat.data.spacetimes")
-    return sorted(Path(str(p)) for p in folder.iterdir() if p.name.endswith(".toml"))
 
 
 def head(session: Session, slug: str) -> Revision | None:
@@ -257,14 +249,6 @@ def record_to_json(row: CheckRecord) -> dict:
         "version": row.verifier_version,
         "created_at": row.created_at.isoformat(),
     }
-
-
-def iter_bundled_documents() -> Iterator[MetricDocument]:
-    from gravicat.format.metricfile import decode_toml
-
-    for path in bundled_files():
-        raw = decode_toml(path)
-        yield validate(raw.data, f"bundled:{path.name}")
 
 
 def count_entries(session: Session) -> int:
