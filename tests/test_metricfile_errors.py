@@ -853,7 +853,7 @@ def _line_elements():
 @pytest.mark.parametrize(("doc", "chart"), list(_line_elements()))
 def test_every_bundled_line_element_gives_sympys_hessian(doc, chart, monkeypatch):
     """g_ab = (1/2) d^2(ds^2)/d(dx^a)d(dx^b), with sympy.hessian as the reference (general-purpose library)."""
-    import gravicat.format.metricfile as mf
+    import gravicat.format.charts as mf  # the one chart builder
 
     seen = []
     real = mf._quadratic_form
@@ -894,3 +894,27 @@ def test_lower_degree_terms_that_cancel_are_still_accepted(tmp_path):
     spec = _single_chart(tmp_path, "-dt**2 + dx**2 + dy**2 + dz**2 + (x*(x + 1) - x**2 - x)*dt",
                          coords=("t", "x", "y", "z"))
     assert spec.metric == sympy.diag(-1, 1, 1, 1)
+
+
+def _bundled_charts():
+    from gravicat.format.bundled import iter_bundled_documents
+
+    for doc in iter_bundled_documents():
+        for chart in doc.chart_names:
+            yield pytest.param(doc, chart, id=f"{doc.id}:{chart}")
+
+
+@pytest.mark.parametrize(("doc", "chart"), list(_bundled_charts()))
+def test_the_layered_chart_is_the_built_chart_with_definitions_kept(doc, chart):
+    """One chart builder: the exporters' form (definitions as symbols) expands to exactly the metric
+    every verifier gets (compared by sympy's cancel, the reference library's normal form)."""
+    from gravicat.format.charts import layered_chart
+
+    spec = build_chart(doc, chart)
+    lay = layered_chart(doc, chart)
+    assert lay.coords == tuple(spec.coords) and lay.params == tuple(spec.params)
+    n = len(spec.coords)
+    for i in range(n):
+        for j in range(i, n):
+            diff = lay.expand(lay.metric[i, j]) - spec.metric[i, j]
+            assert diff == 0 or sympy.cancel(diff) == 0, (i, j)

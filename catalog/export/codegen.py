@@ -62,6 +62,7 @@ from gravicat.export.parameters import (  # noqa: F401  (re-exported)
 # The NAME=VALUE parser lives in the format room (one parser for every command); these names stay
 # importable from here for older callers.
 from gravicat.format.assign import parse_assignments, real_number, split_assignments  # noqa: F401
+from gravicat.format.charts import Layered, layered_chart  # noqa: F401  (the one chart builder)
 
 #: statuses under which a revision may be exported without ``allow_unverified``
 ACCEPTED = ("pass", "skipped", "inconclusive")
@@ -169,87 +170,6 @@ def provenance(document, context: Mapping[str, Any], exporter, chart: str) -> Pr
 
 
 # --------------------------------------------------------------------------- prepared chart
-
-
-@dataclass
-class Layered:
-    """A chart with its ``define`` entries kept as symbols (for display and the chain rule).
-
-    ``defines`` lists (symbol, expression) in file order; an expression may use coordinates,
-    parameters, functions and earlier definitions. ``metric`` is written in the same symbols.
-    """
-
-    coords: tuple
-    params: tuple
-    defines: list
-    metric: Any
-    functions: dict
-    env: dict  # name -> sympy object (parameters, coordinates, definition symbols)
-    names: Any  # gravicat.format.expr.Names for parsing more expressions of this chart
-
-    def substituted(self, values: Mapping[Any, Any]) -> Layered:
-        if not values:
-            return self
-        return Layered(self.coords, self.params, [(d, e.xreplace(values)) for d, e in self.defines],
-                       self.metric.xreplace(values), self.functions, self.env, self.names)
-
-    def relations(self, text: str, source: str, field: str) -> list[tuple[Any, str, Any]]:
-        """A (possibly chained) inequality as ``[(left, op, right), ...]`` in this chart's symbols."""
-        from gravicat.format.expr import check_relation, to_sympy
-
-        return [(to_sympy(r.left, self.env, self.functions), r.op, to_sympy(r.right, self.env, self.functions))
-                for r in check_relation(text, self.names, source=source, field=field)]
-
-    def expand(self, expr):
-        """``expr`` with every definition replaced by its value (in coordinates and parameters)."""
-        for d, e in reversed(self.defines):
-            if d in expr.free_symbols:
-                expr = expr.xreplace({d: e})
-        return expr
-
-
-def layered_chart(doc, chart: str) -> Layered:
-    """Parse one chart with its definitions kept as symbols (the document is already validated)."""
-    import sympy
-
-    from gravicat.format.expr import Names, check_expression, to_sympy
-    from gravicat.format.metricfile import FUNCTION_DECL, parameter_symbols
-
-    c = doc.data["charts"][chart]
-    base = f"charts.{chart}"
-    params = parameter_symbols(doc)
-    coords = {name: sympy.Symbol(name, real=True) for name in c["coordinates"]}
-    env: dict[str, Any] = {**params, **coords}
-    fdecl, functions = {}, {}
-    for decl in c["functions"]:
-        m = FUNCTION_DECL.match(decl)
-        fdecl[m.group(1)] = tuple(a.strip() for a in m.group(2).split(","))
-        functions[m.group(1)] = sympy.Function(m.group(1), real=True)(*(coords[a] for a in fdecl[m.group(1)]))
-    names = Names(symbols=frozenset(env), functions=fdecl, coordinates=frozenset(coords))
-
-    def build(text, field, nm):
-        return to_sympy(check_expression(text, nm, source=doc.source, field=field), env, functions)
-
-    defines = []
-    for dname, text in c["define"].items():
-        value = build(text, f"{base}.define.{dname}", names)
-        sym = sympy.Symbol(dname, real=True)
-        defines.append((sym, value))
-        env[dname] = sym
-        names = names.with_symbols([dname])
-    n = len(coords)
-    if "line-element" in c:
-        dsyms = [sympy.Symbol(f"d{name}") for name in coords]
-        env.update({str(d): d for d in dsyms})
-        form = build(c["line-element"], f"{base}.line-element", names.with_symbols([str(d) for d in dsyms]))
-        grad = [sympy.diff(form, d) for d in dsyms]
-        g = sympy.Matrix(n, n, lambda i, j: sympy.diff(grad[i], dsyms[j]) / 2)
-        for d in dsyms:
-            del env[str(d)]
-    else:
-        g = sympy.Matrix(n, n, lambda i, j: build(c["metric"][i][j], f"{base}.metric[{i}][{j}]", names))
-    return Layered(tuple(coords.values()), tuple(params.values()), defines, sympy.ImmutableMatrix(g), functions,
-                   env, names)
 
 
 @dataclass
