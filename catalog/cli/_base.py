@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING
 
 import typer
 
-from gravicat.errors import CatalogError, DatabaseError
+from gravicat.errors import CatalogError, DatabaseError, InputError
 
 if TYPE_CHECKING:
     import pluggy
@@ -61,22 +61,53 @@ def app_context(ctx: typer.Context) -> AppContext:
     return ctx.ensure_object(AppContext) if ctx.obj is None else ctx.obj
 
 
+def open_subject(app_ctx: AppContext, text: str, *, chart: str | None = None, revision: str | None = None):
+    """The one reading of a command's subject (``FILE[:CHART]`` or ``ID[@REVISION][:CHART]``, see
+    :mod:`gravicat.api.subjects`): a :class:`~gravicat.api.subjects.Resolved`. Only an entry opens
+    the database (one read-only transaction)."""
+    from gravicat.api.subjects import parse_subject, resolve_subject
+
+    ref = parse_subject(text, chart=chart, revision=revision)
+    if ref.is_file:
+        return resolve_subject(ref, plugins=app_ctx.plugins)
+    with app_ctx.transaction() as session:
+        return resolve_subject(ref, plugins=app_ctx.plugins, session=session)
+
+
+_DEPRECATIONS: list[str] = []  # notes about old option spellings, printed when the command ends without error
+
+
+def deprecated(note: str) -> None:
+    """A one-line note on stderr about an old spelling, printed once when the command ends (not after an
+    error, which stays the one line on stderr)."""
+    _DEPRECATIONS.append(note)
+
+
 def reports_errors(fn):
     """Turn a CatalogError (and database failures) into one stderr line and its exit code."""
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
+        _DEPRECATIONS.clear()
+        failed = False
         try:
             return fn(*args, **kwargs)
         except CatalogError as exc:
+            failed = True
             typer.echo(f"Error: {exc}", err=True)
             raise typer.Exit(exc.exit_code) from None
         except Exception as exc:
             converted = _database_failure(exc)
             if converted is None:
                 raise
+            failed = True
             typer.echo(f"Error: {converted}", err=True)
             raise typer.Exit(converted.exit_code) from None
+        finally:  # a deprecation note only when there is no error: an error stays the one stderr line
+            if not failed:
+                for note in dict.fromkeys(_DEPRECATIONS):
+                    typer.echo(note, err=True)
+            _DEPRECATIONS.clear()
 
     return wrapper
 
@@ -92,3 +123,26 @@ def _database_failure(exc: Exception) -> DatabaseError | None:
     if isinstance(exc, OperationalError):
         return DatabaseError(f"database error: {str(exc.orig).splitlines()[0]}; nothing was written")
     return None
+
+
+def merge_set_options(given: list[str] | None, old: str | list[str] | None, old_name: str) -> list[str]:
+    """``--set NAME=VALUE`` texts (repeatable, each may be comma-separated) merged with an older
+    spelling of the same option (``--params``, ``--match``), kept as a hidden alias for one
+    release: using it prints a one-line deprecation note on stderr; a name given by both with
+    different values is an :class:`InputError`, the same value twice counts once."""
+    from gravicat.format.assign import split_assignments
+
+    texts = [t for t in (given or []) if t.strip()]
+    old_texts = [old] if isinstance(old, str) else list(old or [])
+    if not old_texts:
+        return texts
+    deprecated(f"note: {old_name} is deprecated and will be removed; use --set NAME=VALUE (repeatable)")
+    new_values = {name: value for t in texts for name, value in split_assignments(t, "--set")}
+    for text in old_texts:
+        for name, value in split_assignments(text, old_name):
+            if name in new_values:
+                if new_values[name].replace(" ", "") != value.replace(" ", ""):
+                    raise InputError("--set", name, f"is {new_values[name]} but {old_name} gives {value}; give one")
+                continue
+            texts.append(f"{name}={value}")
+    return texts

@@ -8,7 +8,7 @@ from typing import Annotated
 
 import typer
 
-from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._base import AppContext, app_context, open_subject, reports_errors
 from gravicat.cli._output import emit_json, emit_table, fit_last_column, terminal_width
 from gravicat.errors import CheckFailed, InputError
 
@@ -58,16 +58,18 @@ def _print_reports(metric: str, reports, as_json: bool) -> str:
 
 
 def load_subject(app_ctx: AppContext, arg: str, revision: str | None = None):
-    """A metric file path, or the id of a catalogue entry (latest revision unless ``revision``)."""
-    from gravicat.format.metricfile import load_file
+    """The document a subject (``FILE[:CHART]`` or ``ID[@REVISION][:CHART]``) names."""
+    return open_subject(app_ctx, arg, revision=revision).document
 
-    path = Path(arg)
-    if path.exists() or path.suffix.lower() in (".toml", ".json"):
-        return load_file(path, app_ctx.plugins)
-    from gravicat.store import revisions as store
 
-    with app_ctx.transaction() as session:
-        return store.document_of(store.revision(session, arg, revision))
+def subject_charts(text: str, named: str | None, given: list[str] | None) -> list[str] | None:
+    """The charts a command with a repeatable ``--chart`` works on: ``:CHART`` in the subject
+    means ``--chart CHART``; both given and different is an error."""
+    if named is None:
+        return given or None
+    if given and set(given) != {named}:
+        raise InputError(text, None, f"names chart '{named}' but --chart is '{', '.join(given)}'; give one")
+    return [named]
 
 
 def catalogue_exists(app_ctx: AppContext) -> bool:
@@ -122,7 +124,8 @@ def catalogue_targets(app_ctx: AppContext, doc) -> dict:
 @reports_errors
 def check(
     ctx: typer.Context,
-    file: Annotated[Path, typer.Argument(help="Metric file (.toml or .json).", show_default=False)],
+    file: Annotated[str, typer.Argument(metavar="SUBJECT", help="Metric file (FILE[:CHART]) or catalogue entry "
+                                                                "(ID[@REVISION][:CHART]).", show_default=False)],
     chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
     only: Annotated[list[str] | None, typer.Option("--only", help="Only this check (repeatable).")] = None,
     budget: BudgetOpt = 20.0,
@@ -140,12 +143,13 @@ def check(
     """
     from gravicat.engine.fork import default_jobs
     from gravicat.engine.runner import bundled_documents, check_document, make_resolver, select_verifiers
-    from gravicat.format.metricfile import load_file
     from gravicat.registry import verifiers
 
     _quick_exit()
     app_ctx = app_context(ctx)
-    doc = load_file(file, app_ctx.plugins)
+    found = open_subject(app_ctx, file)
+    doc = found.document
+    chart = subject_charts(file, found.chart, chart)
     for name in chart or ():
         if name not in doc.chart_names:
             raise InputError(str(file), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
@@ -163,7 +167,9 @@ def check(
 @reports_errors
 def verify(
     ctx: typer.Context,
-    entries: Annotated[list[str] | None, typer.Argument(help="Entry ids.", show_default=False)] = None,
+    entries: Annotated[list[str] | None, typer.Argument(
+        metavar="[ID[@REVISION][:CHART]]...", help="Entries (latest revision unless @REVISION; every chart "
+                                                   "unless :CHART).", show_default=False)] = None,
     all_entries: Annotated[bool, typer.Option("--all", help="Every entry of the catalogue.")] = False,
     force: Annotated[bool, typer.Option("--force", help="Recompute even when results are stored.")] = False,
     jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
@@ -192,7 +198,13 @@ def verify(
         if jobs != 1:
             raise InputError("--jobs", None, "does not apply with --enqueue; give it to 'gravicat worker'")
         with app_ctx.transaction() as session:
-            made = queue.enqueue_entries(session, entries, chosen, force=force, budget=budget)
+            if entries:
+                picked = [_entry_subject(session, e) for e in entries]
+                if any(c is not None for _, c in picked):
+                    raise InputError("--enqueue", None, "queues every chart of an entry; drop the :CHART part")
+                made = queue.enqueue(session, [r for r, _ in picked], chosen, force=force, budget=budget)
+            else:
+                made = queue.enqueue_entries(session, None, chosen, force=force, budget=budget)
         if as_json:
             emit_json(made.to_json())
         else:
@@ -200,13 +212,15 @@ def verify(
         return
     units, keys = [], {}
     with app_ctx.transaction() as session:
-        revisions = ([store.revision(session, e) for e in entries] if entries
-                     else store.list_entries(session))
+        picked = ([_entry_subject(session, e) for e in entries] if entries
+                  else [(r, None) for r in store.list_entries(session)])
         docs = {r.entry.slug: r.document for r in store.list_entries(session)}
-        for rev in revisions:
+        for rev, only_chart in picked:
             done = set() if force else store.stored_versions(session, rev)
             keys[rev.id] = (rev.entry.slug, rev.hash)
             for chart in rev.document["charts"]:
+                if only_chart is not None and chart != only_chart:
+                    continue
                 todo = [v.name for v in chosen if (chart, v.name, v.version) not in done]
                 if todo:
                     units.append({"key": rev.id, "chart": chart, "document": rev.document,
@@ -239,6 +253,20 @@ def verify(
         if as_json:
             raise typer.Exit(1)
         raise CheckFailed(f"{len(failed)} entr{'y' if len(failed) == 1 else 'ies'} failed: {', '.join(failed)}")
+
+
+def _entry_subject(session, text: str):
+    """(stored revision, chart or None) of a ``verify`` subject: results are stored against a
+    catalogue revision, so a file is refused (``check`` verifies a file)."""
+    from gravicat.api.subjects import check_chart, find_revision, parse_subject
+    from gravicat.store import revisions as store
+
+    ref = parse_subject(text)
+    if ref.is_file:
+        raise InputError(text, None, "verify stores results against catalogue entries; "
+                                     "use 'gravicat check FILE' for a file (or 'gravicat add' it first)")
+    rev = find_revision(session, ref)
+    return rev, check_chart(ref, store.document_of(rev))
 
 
 def _run_units(units: list[dict], jobs: int) -> list[dict]:
@@ -282,7 +310,8 @@ def _run_units(units: list[dict], jobs: int) -> list[dict]:
 @reports_errors
 def invariants(
     ctx: typer.Context,
-    subject: Annotated[str, typer.Argument(help="Metric file or entry id.", show_default=False)],
+    subject: Annotated[str, typer.Argument(help="Metric file (FILE[:CHART]) or catalogue entry "
+                                                "(ID[@REVISION][:CHART]).", show_default=False)],
     chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
     as_json: JsonOpt = False,
 ) -> None:
@@ -292,8 +321,9 @@ def invariants(
 
     _quick_exit()
     app_ctx = app_context(ctx)
-    doc = load_subject(app_ctx, subject)
-    names = chart or doc.chart_names
+    found = open_subject(app_ctx, subject)
+    doc = found.document
+    names = subject_charts(subject, found.chart, chart) or doc.chart_names
     out = []
     for name in names:
         geo = Geometry(build_chart(doc, name))

@@ -128,17 +128,26 @@ def _pretty(text: str, coords: list[str]) -> str:
 @reports_errors
 def show(
     ctx: typer.Context,
-    entry: Annotated[str, typer.Argument(help="Entry id.", show_default=False)],
+    entry: Annotated[str, typer.Argument(metavar="ID[@REVISION][:CHART]", help="Catalogue entry (latest "
+                                                                             "revision unless @REVISION).",
+                                         show_default=False)],
     chart: Annotated[str | None, typer.Option("--chart", help="Only this chart.")] = None,
     revision: Annotated[str | None, typer.Option("--revision", help="Revision hash prefix or number.")] = None,
     as_json: JsonOpt = False,
 ) -> None:
     """Show an entry: metadata, parameters with ranges, charts and the latest check results."""
-    from gravicat.errors import NotFound
+    from gravicat.api.subjects import check_chart, find_revision, parse_subject
+    from gravicat.errors import InputError, NotFound
     from gravicat.store import revisions as store
 
+    ref = parse_subject(entry, chart=chart, revision=revision)
+    if ref.is_file:
+        raise InputError(entry, None, "show reads catalogue entries; for a file use 'gravicat check' or "
+                                      "'gravicat export --to json'")
+    chart = ref.chart
     with app_context(ctx).transaction() as session:
-        rev = store.revision(session, entry, revision)
+        rev = find_revision(session, ref)
+        check_chart(ref, store.document_of(rev))
         data = rev.document
         checks = [store.record_to_json(r) for r in store.results_for(session, rev)]
         prov = rev.provenance
@@ -208,7 +217,9 @@ def _matrix_strings(data: dict, chart: str) -> list[list[str]]:
 @reports_errors
 def remove(
     ctx: typer.Context,
-    entry: Annotated[str, typer.Argument(help="Entry id.", show_default=False)],
+    entry: Annotated[str, typer.Argument(metavar="ID[@REVISION][:CHART]", help="Catalogue entry (latest "
+                                                                             "revision unless @REVISION).",
+                                         show_default=False)],
     yes: Annotated[bool, typer.Option("--yes", "-y", help="Do not ask.")] = False,
 ) -> None:
     """Remove an entry with all its revisions and results."""

@@ -11,7 +11,7 @@ from typing import Annotated
 
 import typer
 
-from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._base import AppContext, app_context, deprecated, merge_set_options, open_subject, reports_errors
 from gravicat.errors import CatalogError, InputError, NotFound
 
 app = typer.Typer()
@@ -49,13 +49,19 @@ def _catalogue_checks(app_ctx: AppContext, doc) -> tuple[str, list[dict]] | None
 @reports_errors
 def export(
     ctx: typer.Context,
-    subject: Annotated[str | None, typer.Argument(metavar="ID_OR_FILE", help="Entry id or metric file.",
+    subject: Annotated[str | None, typer.Argument(metavar="SUBJECT", help="Catalogue entry (ID[@REVISION][:CHART]) "
+                                                                         "or metric file (FILE[:CHART]).",
                                                   show_default=False)] = None,
     to: Annotated[str, typer.Option("--to", help="Export target (see --list).")] = "json",
     chart: Annotated[str | None, typer.Option("--chart", help="Chart to export (code targets; default: the "
                                                               "first).")] = None,
-    params: Annotated[str | None, typer.Option("--params", help="Fix parameter values, e.g. M=1,a=0.9, or "
-                                                                "'symbolic' (default: runtime parameters).")] = None,
+    settings: Annotated[list[str] | None, typer.Option(
+        "--set", metavar="NAME=VALUE", help="Fix a parameter value in the code (repeatable, or comma-separated: "
+                                            "--set M=1,a=0.9; default: runtime parameters).",
+        show_default=False)] = None,
+    params: Annotated[str | None, typer.Option("--params", hidden=True,
+                                               help="Deprecated spelling of --set (M=1,a=0.9, or 'symbolic' "
+                                                    "for the default).")] = None,
     output: Annotated[Path | None, typer.Option("--output", "-o", help="Write here instead of stdout.")] = None,
     revision: Annotated[str | None, typer.Option("--revision", help="Revision hash prefix or number.")] = None,
     allow_unverified: Annotated[bool, typer.Option("--allow-unverified", help="Export a revision whose checks "
@@ -76,28 +82,25 @@ def export(
             typer.echo(f"{name}\t{exp.version}\t{exp.suffix}\t{_description(exp)}")
         return
     if subject is None:
-        raise InputError("ID_OR_FILE", None, "give the entry id or metric file to export (or --list)")
+        raise InputError("SUBJECT", None, "give the entry (ID[@REVISION][:CHART]) or metric file to export (or --list)")
     if to not in targets:
         raise NotFound(f"--to: no export target '{to}' (available: {', '.join(sorted(targets)) or 'none'})")
-    path = Path(subject)
-    if path.exists() or path.suffix.lower() in (".toml", ".json"):
-        from gravicat.format.metricfile import load_file
-
-        if revision is not None:
-            raise InputError("--revision", None, "applies to catalogue entries, not to a file")
-        doc = load_file(path, app_ctx.plugins)
-        found = _catalogue_checks(app_ctx, doc)
-        context = {"revision": doc.hash, "checks": found[1] if found else [],
-                   "source": f"{path}" + (" (identical to the catalogue revision)" if found else
+    if params is not None and params.strip() == "symbolic":  # the default: every parameter stays a symbol
+        deprecated("note: --params is deprecated and will be removed; parameters stay symbols unless --set")
+        params = None
+    texts = merge_set_options(settings, params, "--params")
+    params = ",".join(texts) if texts else None
+    found = open_subject(app_ctx, subject, chart=chart, revision=revision)
+    doc, chart = found.document, found.chart
+    if found.is_file:
+        path = found.ref.path
+        stored = _catalogue_checks(app_ctx, doc)
+        context = {"revision": doc.hash, "checks": stored[1] if stored else [],
+                   "source": f"{path}" + (" (identical to the catalogue revision)" if stored else
                                           " (not in the catalogue: no stored checks)")}
     else:
-        from gravicat.store import revisions as store
-
-        with app_ctx.transaction() as session:
-            rev = store.revision(session, subject, revision)
-            doc = store.document_of(rev)
-            context = {"revision": rev.hash, "source": f"catalogue entry {subject}, revision {rev.number}",
-                       "checks": [store.record_to_json(r) for r in store.results_for(session, rev)]}
+        context = {"revision": found.revision_hash, "checks": found.checks,
+                   "source": f"catalogue entry {found.ref.entry}, revision {found.revision_number}"}
     context.update({"chart": chart, "params": params, "allow_unverified": allow_unverified,
                     "christoffel": christoffel, "budget": budget})
     text = targets[to].export(doc, context)

@@ -2,60 +2,35 @@
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._base import AppContext, app_context, merge_set_options, open_subject, reports_errors
 from gravicat.cli._output import emit_json, emit_table, short
-from gravicat.errors import InputError
 
 app = typer.Typer()
 
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")]
-SUBJECT = re.compile(r"^([a-z0-9][a-z0-9-]*)(?:@([0-9A-Za-z]+))?(?::([a-z0-9][a-z0-9-]*))?$")
 
 
 # --------------------------------------------------------------------------- compare
 
 
 def resolve_subject(app_ctx: AppContext, arg: str):
-    """A metric file (``FILE`` or ``FILE:CHART``) or a catalogue entry (``ID``, ``ID:CHART``, ``ID@REV:CHART``).
-
-    Only an entry needs the database.
-    """
-    from gravicat.errors import NotFound
-    from gravicat.format.metricfile import load_file
+    """One side of ``compare``: ``FILE[:CHART]`` or ``ID[@REVISION][:CHART]`` (default: the first chart)."""
+    from gravicat.checks import worst
     from gravicat.physics.equivalence import Subject
 
-    path, chart = Path(arg), None
-    head, sep, tail = arg.rpartition(":")
-    if not path.is_file() and sep and Path(head).is_file():
-        path, chart = Path(head), tail
-    if path.is_file() or path.suffix.lower() in (".toml", ".json"):
-        doc = load_file(path, app_ctx.plugins)
-        chart = chart or doc.chart_names[0]
-        if chart not in doc.chart_names:
-            raise NotFound(f"{path}: no chart '{chart}' (charts: {', '.join(doc.chart_names)})")
+    found = open_subject(app_ctx, arg)
+    doc = found.document
+    chart = found.chart or doc.chart_names[0]
+    if found.is_file:
         return Subject(doc, chart, arg)
-    m = SUBJECT.match(arg)
-    if not m:
-        raise InputError(arg, None, "not a metric file, an entry id, ID:CHART or ID@REVISION:CHART")
-    from gravicat.checks import worst
-    from gravicat.store import revisions as store
-
-    slug, rev_ref, chart = m.groups()
-    with app_ctx.transaction() as session:
-        rev = store.revision(session, slug, rev_ref)
-        doc = store.document_of(rev)
-        chart = chart or doc.chart_names[0]
-        if chart not in doc.chart_names:
-            raise NotFound(f"{slug}: no chart '{chart}' (charts: {', '.join(doc.chart_names)})")
-        rows = [r for r in store.results_for(session, rev) if r.chart == chart]
-        status = worst(r.status for r in rows).value if rows else "unverified"
-        return Subject(doc, chart, arg, rev.hash, rev.number, status)
+    rows = [r for r in found.checks if r["chart"] == chart]
+    status = worst(r["status"] for r in rows).value if rows else "unverified"
+    return Subject(doc, chart, arg, found.revision_hash, found.revision_number, status)
 
 
 ROWS = [("entry:chart", lambda s: f"{s['entry']}:{s['chart']}"),
@@ -65,7 +40,7 @@ ROWS = [("entry:chart", lambda s: f"{s['entry']}:{s['chart']}"),
         ("signature", lambda s: s["signature"] or f"? ({s['signature_note']})"),
         ("field equations", lambda s: f"{s['field_equations']} (checks: {s['status']})"),
         ("parameters", lambda s: "; ".join(
-            (f"{p['name']} = {p['matched']} (--match)" if p["matched"] else (p["range"] or p["name"]))
+            (f"{p['name']} = {p['matched']} (--set)" if p["matched"] else (p["range"] or p["name"]))
             for p in s["parameters"]) or "none"),
         ("obvious symmetries", lambda s: f"{s['symmetries']['dimension']}"
                                          + (f" ({', '.join(s['symmetries']['coordinates'])})"
@@ -77,19 +52,22 @@ INVARIANT_LABELS = {"ricci-scalar": "Ricci scalar", "kretschmann": "Kretschmann"
 @reports_errors
 def compare(
     ctx: typer.Context,
-    first: Annotated[str, typer.Argument(metavar="A", help="Metric file, FILE:CHART, entry id or ID:CHART.",
+    first: Annotated[str, typer.Argument(metavar="A", help="FILE[:CHART] or ID[@REVISION][:CHART].",
                                          show_default=False)],
-    second: Annotated[str, typer.Argument(metavar="B", help="Metric file, FILE:CHART, entry id or ID:CHART.",
+    second: Annotated[str, typer.Argument(metavar="B", help="FILE[:CHART] or ID[@REVISION][:CHART].",
                                           show_default=False)],
     coordinate_map: Annotated[list[str] | None, typer.Option(
         "--map", metavar="COORD=EXPR", help="Coordinate map: coordinates of one chart as expressions in the "
                                             "other's, e.g. --map 'r=R*(1+M/(2*R))**2' (repeatable; coordinates "
                                             "not given map to the same name). Parameters of either chart may be "
-                                            "used by their own names; --match identifications are substituted.",
+                                            "used by their own names; --set identifications are substituted.",
         show_default=False)] = None,
+    settings: Annotated[list[str] | None, typer.Option(
+        "--set", metavar="PARAM=EXPR", help="Parameter identification: B's PARAM equals EXPR in A's "
+                                            "parameters, e.g. --set Q=e or --set a=0 (repeatable, or "
+                                            "comma-separated).", show_default=False)] = None,
     match: Annotated[list[str] | None, typer.Option(
-        "--match", metavar="PARAM=EXPR", help="Parameter identification: B's PARAM equals EXPR in A's "
-                                              "parameters, e.g. --match Q=e or --match a=0 (repeatable).",
+        "--match", metavar="PARAM=EXPR", hidden=True, help="Deprecated spelling of --set.",
         show_default=False)] = None,
     budget: Annotated[float, typer.Option("--budget", metavar="S", min=0.5, help="Seconds per symbolic step.")] = 20.0,
     no_search: Annotated[bool, typer.Option("--no-search", help="Do not look for a coordinate map from the "
@@ -106,7 +84,8 @@ def compare(
     app_ctx = app_context(ctx)
     a = resolve_subject(app_ctx, first)
     b = resolve_subject(app_ctx, second)
-    result = run(a, b, match=match or (), coordinate_map=coordinate_map or (), budget=budget,
+    match = merge_set_options(settings, match, "--match")
+    result = run(a, b, match=match, coordinate_map=coordinate_map or (), budget=budget,
                  search_map=not no_search)
     if as_json:
         emit_json(result.to_json())

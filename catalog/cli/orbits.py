@@ -8,7 +8,7 @@ from typing import Annotated, Any
 
 import typer
 
-from gravicat.cli._base import app_context, reports_errors
+from gravicat.cli._base import app_context, open_subject, reports_errors
 from gravicat.cli._output import emit_json, emit_table
 from gravicat.errors import InputError
 
@@ -34,7 +34,8 @@ def _fmt(value: Any, digits: int = 12) -> str:
 @reports_errors
 def orbits(
     ctx: typer.Context,
-    subject: Annotated[str, typer.Argument(metavar="ID_OR_FILE", help="Catalogue entry id or metric file.",
+    subject: Annotated[str, typer.Argument(metavar="SUBJECT", help="Catalogue entry (ID[@REVISION][:CHART]) or "
+                                                                  "metric file (FILE[:CHART]).",
                                            show_default=False)],
     chart: Annotated[str | None, typer.Option("--chart", metavar="NAME",
                                               help="Chart to use (default: the entry's first chart).")] = None,
@@ -64,15 +65,13 @@ def orbits(
                                            "(needs matplotlib: pip install 'gravicat[plot]').")] = None,
 ) -> None:
     """Horizons, observers and circular orbits of a stationary, axisymmetric chart, from its metric."""
-    from gravicat.cli.checks import load_subject
     from gravicat.format.metricfile import build_chart
     from gravicat.physics import orbits as lib
     from gravicat.physics import units as U
 
     app_ctx = app_context(ctx)
-    doc = load_subject(app_ctx, subject)
-    if chart is not None and chart not in doc.chart_names:
-        raise InputError(subject, f"charts.{chart}", f"no such chart (charts: {', '.join(doc.chart_names)})")
+    found = open_subject(app_ctx, subject, chart=chart)
+    doc, chart = found.document, found.chart
     spec = build_chart(doc, chart)
     system = units.value
     params = lib.resolve_parameters(doc, spec, settings or (), units=system)

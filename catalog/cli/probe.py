@@ -2,46 +2,42 @@
 
 from __future__ import annotations
 
-from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from gravicat.cli._base import AppContext, app_context, reports_errors
+from gravicat.cli._base import AppContext, app_context, merge_set_options, open_subject, reports_errors
 from gravicat.cli._output import emit_json, emit_table
 from gravicat.errors import CheckFailed, NotFound
 
 app = typer.Typer()
 
 
-def subject_with_checks(app_ctx: AppContext, arg: str):
-    """(document, export context): a metric file (no stored checks) or a catalogue entry (its stored checks)."""
-    from gravicat.format.metricfile import load_file
-
-    path = Path(arg)
-    if path.exists() or path.suffix.lower() in (".toml", ".json"):
-        doc = load_file(path, app_ctx.plugins)
-        return doc, {"revision": doc.hash, "checks": [], "source": str(path)}
-    from gravicat.store import revisions as store
-
-    with app_ctx.transaction() as session:
-        rev = store.revision(session, arg)
-        doc = store.document_of(rev)
-        context = {"revision": rev.hash, "checks": [store.record_to_json(r) for r in store.results_for(session, rev)],
-                   "source": "catalogue"}
-    return doc, context
+def subject_with_checks(app_ctx: AppContext, arg: str, chart: str | None = None):
+    """(document, chart or None, export context): a metric file (no stored checks) or a catalogue
+    entry (its stored checks), named by the one subject syntax."""
+    found = open_subject(app_ctx, arg, chart=chart)
+    if found.is_file:
+        context = {"revision": found.document.hash, "checks": [], "source": str(found.ref.path)}
+    else:
+        context = {"revision": found.revision_hash, "checks": found.checks, "source": "catalogue"}
+    return found.document, found.chart, context
 
 
 @app.command("probe")
 @reports_errors
 def probe(
     ctx: typer.Context,
-    subject: Annotated[str, typer.Argument(help="Metric file or entry id.", show_default=False)],
+    subject: Annotated[str, typer.Argument(help="Metric file (FILE[:CHART]) or catalogue entry "
+                                                "(ID[@REVISION][:CHART]).", show_default=False)],
     start: Annotated[str, typer.Option("--from", help="Start point, e.g. r=10,theta=pi/2 (coordinates the metric "
                                                      "does not depend on default to 0).", show_default=False)],
     chart: Annotated[str | None, typer.Option("--chart", help="Chart (default: the first).")] = None,
-    params: Annotated[str | None, typer.Option("--params", help="Parameter values, e.g. M=1,a=0.9 (default: the "
-                                                                "file's defaults).")] = None,
+    settings: Annotated[list[str] | None, typer.Option(
+        "--set", metavar="NAME=VALUE", help="Parameter value (repeatable, or comma-separated: --set M=1,a=0.9; "
+                                            "default: the file's defaults).", show_default=False)] = None,
+    params: Annotated[str | None, typer.Option("--params", hidden=True,
+                                               help="Deprecated spelling of --set.")] = None,
     orbit: Annotated[str, typer.Option("--orbit", help="circular, radial or custom.")] = "circular",
     direction: Annotated[str, typer.Option("--direction", help="prograde or retrograde (circular orbits).")]
     = "prograde",
@@ -67,7 +63,8 @@ def probe(
     from gravicat.registry import exporters
 
     app_ctx = app_context(ctx)
-    doc, context = subject_with_checks(app_ctx, subject)
+    doc, chart, context = subject_with_checks(app_ctx, subject, chart)
+    params = merge_set_options(settings, params, "--params") or None
     exporter = exporters(app_ctx.plugins).get("python")
     if exporter is None:
         raise NotFound("the probe runs the code of the 'python' export target, which is not loaded "

@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from gravicat.cli._base import app_context, reports_errors
+from gravicat.cli._base import app_context, open_subject, reports_errors
 from gravicat.cli._output import emit_json, short
 from gravicat.errors import CheckFailed, InputError
 
@@ -73,7 +73,7 @@ def _print_text(report, write: bool) -> None:
             typer.echo("Nothing was written (give --write to apply a suggestion).")
 
 
-def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> list[str]:
+def _write(app_ctx, subject: Path | str, is_file: bool, report, pick: int | None) -> list[str]:
     """Apply the chosen suggestion.
 
     A file is written (in place, or the canonical JSON beside it) and nothing else: the catalogue is
@@ -90,6 +90,9 @@ def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> li
     if pick is not None and not 1 <= pick <= len(suggestions):
         raise InputError("--pick", None, f"{pick} is not a suggestion rank (1 to {len(suggestions)}); "
                                          "nothing was written")
+    if pick is None and not credible:
+        raise InputError("--write", None, f"all {len(suggestions)} suggestions are doubtful: choose one with "
+                                          "--pick RANK (nothing was written)")
     chosen = suggestions[pick - 1] if pick is not None else credible[0]
     message = "repair: " + "; ".join(f"{e.field}: {e.detail}" for e in chosen.edits)
     if is_file:
@@ -115,7 +118,8 @@ def _write(app_ctx, subject: str, is_file: bool, report, pick: int | None) -> li
 @reports_errors
 def repair(
     ctx: typer.Context,
-    file: Annotated[str, typer.Argument(help="Metric file (.toml or .json), or a catalogue entry id.",
+    file: Annotated[str, typer.Argument(metavar="SUBJECT", help="Metric file (FILE[:CHART]) or catalogue entry "
+                                                                "(ID[@REVISION][:CHART]).",
                                         show_default=False)],
     chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
     max_edits: Annotated[int, typer.Option("--max-edits", min=1, max=2, help="1: single edits; 2: also pairs "
@@ -140,17 +144,17 @@ def repair(
     invariant still fails is listed as doubtful, last, and never applied without --pick. Exit 0 when
     there is nothing to repair or a repair is suggested, 1 when none is found.
     """
-    from gravicat.cli.checks import load_subject
+    from gravicat.cli.checks import subject_charts
     from gravicat.engine.runner import bundled_documents
-    from gravicat.format.metricfile import load_file
     from gravicat.registry import verifiers
     from gravicat.repair import find_repairs
 
     app_ctx = app_context(ctx)
     subject = file
-    path = Path(subject)
-    is_file = path.exists() or path.suffix.lower() in (".toml", ".json")
-    doc = load_file(path, app_ctx.plugins) if is_file else load_subject(app_ctx, subject)
+    found = open_subject(app_ctx, subject)
+    doc, is_file = found.document, found.is_file
+    target = found.ref.path if is_file else found.ref.entry
+    chart = subject_charts(subject, found.chart, chart)
     for name in chart or ():
         if name not in doc.chart_names:
             raise InputError(str(subject), f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
@@ -161,12 +165,15 @@ def repair(
     do_write = write and report.status == "repairs-found"
     if as_json:
         out = report.to_json()
-        out["written"] = _write(app_ctx, subject, is_file, report, pick) if do_write else []
+        out["written"] = _write(app_ctx, target, is_file, report, pick) if do_write else []
         emit_json(out)
     else:
         _print_text(report, write)  # the ranks are shown before --write may ask for --pick
-        for line in _write(app_ctx, subject, is_file, report, pick) if do_write else []:
+        for line in _write(app_ctx, target, is_file, report, pick) if do_write else []:
             typer.echo(line)
+    if write and report.status != "repairs-found" and pick is not None and report.suggestions:
+        raise InputError("--pick", None, f"all {len(report.suggestions)} suggestions are doubtful (no repair "
+                                         "found): nothing was written")
     if report.status == "no-repair-found":
         if as_json:
             raise typer.Exit(1)
