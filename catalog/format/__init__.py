@@ -1,8 +1,11 @@
 """format: the metric-file language (the bottom room).
 
-Owns the whitelist expression parser (:mod:`.expr`), the metric-file schema, validation and the
-one chart builder (:mod:`.metricfile`), and the chart specification every other room consumes
-(:mod:`.chartspec`). Expressions from files are data: parsed by a whitelist, never evaluated.
+Owns the whitelist expression parser (:mod:`.expr`), the metric-file schema, validation and
+canonical form (:mod:`.metricfile`), the one chart builder (:mod:`.charts`: ``build_chart`` for
+the verifiers, ``layered_chart`` with definitions kept for the exporters), the chart
+specification every other room consumes (:mod:`.chartspec`), the one ``NAME=VALUE`` option
+parser (:mod:`.assign`) and the one reader of the bundled catalogue (:mod:`.bundled`).
+Expressions from files and options are data: parsed by a whitelist, never evaluated.
 
 May import: the core contract only (``gravicat.errors``, ``gravicat.checks``). Nothing here
 imports another room.
