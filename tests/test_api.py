@@ -337,7 +337,7 @@ def test_subject_errors(cat):
         cat.get("no-such")
     with pytest.raises(NotFound, match="no chart 'nope'.*boyer-lindquist"):
         cat.get("kerr:nope")
-    with pytest.raises(NotFound, match="no revision 'ffff'"):
+    with pytest.raises(NotFound, match="kerr@ffff: no revision of kerr starts with ffff"):
         cat.get("kerr@ffff")
     for text in ("", "kerr@", "kerr:", "Kerr!", "kerr@1@2", "a:b:c"):
         with pytest.raises(InputError):
@@ -348,6 +348,14 @@ def test_subject_errors(cat):
     assert isinstance(cat.get(f"kerr@{entry.revision[:8]}:kerr-schild"), gravicat.Chart)
     with pytest.raises(InputError, match="names a chart"):
         cat.entry("kerr:boyer-lindquist")
+    # the one subject syntax also reads files: FILE[:CHART]
+    path = EXAMPLES / "corvin9-exterior.toml"
+    assert cat.get(str(path)).catalogue is None
+    assert cat.get(f"{path}:exterior").name == "exterior"
+    with pytest.raises(NotFound, match="no chart 'inside'"):
+        cat.get(f"{path}:inside")
+    with pytest.raises(InputError, match="names a file"):
+        cat.verify(str(path))
 
 
 def test_unopened_catalogue_is_one_line(tmp_path):
@@ -396,6 +404,28 @@ def test_add_verify_history_find(any_url):  # noqa: F811
         with pytest.raises(InputError):
             cat.verify()
         assert "corvin9-exterior" in cat and "kerr" not in cat
+
+
+def test_a_files_limit_is_resolved_in_the_catalogue(tmp_path):
+    """A file whose limit names an entry only the catalogue holds (the bundled Minkowski file stored
+    under another id): checked through the catalogue, the massless limit of Corvin-9's exterior is
+    proved to be that flat chart, as ``gravicat check`` finds it in the user's catalogue; without a
+    catalogue the target cannot be resolved and the check says so (never a pass)."""
+    import re
+
+    flat = re.sub(r'^id = ".*"$', 'id = "halcyon-flat"', (BUNDLED / "minkowski.toml").read_text(), flags=re.M)
+    (tmp_path / "halcyon-flat.toml").write_text(flat)
+    lim = '\n[limits.massless]\nchart = "exterior"\nset = { M = "0" }\nreduces-to = "halcyon-flat:spherical"\n'
+    text = re.sub(r'^id = ".*"$', 'id = "halcyon-copy"', (EXAMPLES / "corvin9-exterior.toml").read_text(),
+                  flags=re.M)
+    (tmp_path / "copy.toml").write_text(text + lim)
+    with Catalogue(f"sqlite:///{tmp_path / 'c.sqlite'}") as cat:
+        cat.init(bundled=False)
+        cat.add(tmp_path / "halcyon-flat.toml")
+        through = cat.check(str(tmp_path / "copy.toml"), only=["limits"])
+    alone = load_file(tmp_path / "copy.toml").check(only=["limits"])
+    assert through.result("limits:massless").status == "pass"
+    assert alone.result("limits:massless").status != "pass"
 
 
 def test_find_on_bundled(cat):

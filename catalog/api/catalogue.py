@@ -6,9 +6,10 @@ commands do, through the same library functions: the store (:mod:`gravicat.store
 runner with its CPU-time caps (:mod:`gravicat.engine.fork`). Every call is one transaction, so
 a failed call writes nothing.
 
-Subjects are written ``ID[@REVISION][:CHART]``: ``cat.get("kerr")`` is the latest revision,
-``cat.get("kerr@3f2a")`` the revision whose hash starts with ``3f2a`` (or revision number 3 with
-``kerr@3``), ``cat.get("kerr:boyer-lindquist")`` that chart.
+Subjects follow the project's one syntax (:mod:`gravicat.api.subjects`), ``FILE[:CHART]`` or
+``ID[@REVISION][:CHART]``: ``cat.get("kerr")`` is the latest revision, ``cat.get("kerr@3f2a")``
+the revision whose hash starts with ``3f2a`` (or revision number 3 with ``kerr@3``),
+``cat.get("kerr:boyer-lindquist")`` that chart; ``cat.get("my-metric.toml")`` reads a file.
 """
 
 from __future__ import annotations
@@ -39,18 +40,15 @@ def configured(**given):
     return load_settings(**given)
 
 
-def split_subject(text: str) -> tuple[str, str | None, str | None]:
-    """``"ID[@REVISION][:CHART]"`` -> ``(id, revision or None, chart or None)``; a one-line
-    :class:`gravicat.InputError` for anything else (an empty part, a stray ``@`` or ``:``)."""
-    from gravicat.format.metricfile import SLUG
+def _entry_ref(subject: str, what: str):
+    """The parsed subject (:func:`gravicat.api.subjects.parse_subject`), which must name a
+    catalogue entry: a file is refused with a one-line error saying what to do."""
+    from gravicat.api.subjects import parse_subject
 
-    if not isinstance(text, str) or not text.strip():
-        raise InputError("subject", None, f"{text!r} is not an entry (ID[@REVISION][:CHART])")
-    head, colon, chart = text.strip().partition(":")
-    slug, at, rev = head.partition("@")
-    if not SLUG.match(slug) or (at and not rev) or (colon and not chart) or "@" in rev or ":" in chart:
-        raise InputError(text, None, "not an entry subject (ID[@REVISION][:CHART], e.g. kerr@3f2a:boyer-lindquist)")
-    return slug, rev or None, chart or None
+    ref = parse_subject(subject)
+    if ref.is_file:
+        raise InputError(subject, None, f"names a file; {what} works on catalogue entries (add the file first)")
+    return ref
 
 
 def database_failure(exc: Exception):
@@ -184,17 +182,21 @@ class Catalogue:
 
     # -- reading ----------------------------------------------------------------
     def get(self, subject: str) -> Entry | Chart:
-        """The entry ``ID[@REVISION]`` (latest revision by default), or its chart with ``:CHART``.
+        """What ``subject`` names: the entry ``ID[@REVISION]`` (latest revision by default), or its
+        chart with ``:CHART``; a metric file (``FILE[:CHART]``) gives an entry read from the file.
 
         Unknown ids, revisions and charts are :class:`gravicat.NotFound` (one line, naming the
-        subject); an ambiguous revision prefix is an :class:`gravicat.InputError`.
+        subject); a malformed subject or an ambiguous revision prefix is an :class:`gravicat.InputError`.
         """
-        slug, rev, chart = split_subject(subject)
-        from gravicat.store import revisions as store
+        from gravicat.api.subjects import check_chart, find_revision, parse_subject
 
-        with self.session() as s:
-            found = store.revision(s, slug, rev)
-            entry = self._entry(found)
+        ref = parse_subject(subject)
+        if ref.is_file:
+            entry = load_file(ref.path, plugins=self.plugins)
+        else:
+            with self.session() as s:
+                entry = self._entry(find_revision(s, ref))
+        chart = check_chart(ref, entry.document)
         return entry.chart(chart) if chart else entry
 
     def entry(self, subject: str) -> Entry:
@@ -269,16 +271,19 @@ class Catalogue:
         from gravicat.api import history as hist
 
         with self.session() as s:
-            return hist.history_rows(s, split_subject(slug)[0])
+            return hist.history_rows(s, _entry_ref(slug, "history").entry)
 
     def results(self, subject: str | Entry) -> list[dict[str, Any]]:
         """The stored check results of an entry's revision (for each chart and check the newest), as
         ``gravicat show --json`` lists them."""
+        from gravicat.api.subjects import find_revision, parse_subject
         from gravicat.store import revisions as store
 
-        slug, rev = (subject.id, subject.revision) if isinstance(subject, Entry) else split_subject(subject)[:2]
+        ref = parse_subject(f"{subject.id}@{subject.revision}" if isinstance(subject, Entry) else subject)
+        if ref.is_file:
+            return []
         with self.session() as s:
-            return [store.record_to_json(r) for r in store.results_for(s, store.revision(s, slug, rev))]
+            return [store.record_to_json(r) for r in store.results_for(s, find_revision(s, ref))]
 
     def status(self, subject: str | Entry) -> str:
         """The stored overall status of an entry's revision (``unverified`` when nothing is stored)."""
@@ -320,6 +325,17 @@ class Catalogue:
             store.add_document(s, entry.document, author=who, message=message, tool_version=__version__)
             return self._entry(store.head(s, entry.id))
 
+    def check(self, subject: str | Entry, *, only: list[str] | None = None, budget: float = 20.0,
+              jobs: int | None = None):
+        """Check a subject (``FILE[:CHART]``, ``ID[@REVISION][:CHART]`` or an :class:`Entry`) as
+        ``gravicat check`` does, with this catalogue as the place limit targets are looked up after
+        the document itself (then the bundled catalogue); nothing is stored. Returns
+        :class:`gravicat.CheckResults`."""
+        found = self.get(subject) if isinstance(subject, str) else subject
+        if isinstance(found, Chart):
+            return found.entry.check(charts=[found.name], only=only, budget=budget, jobs=jobs, catalogue=self)
+        return found.check(only=only, budget=budget, jobs=jobs, catalogue=self)
+
     def verify(self, *subjects: str, all: bool = False, force: bool = False, budget: float = 20.0,  # noqa: A002
                jobs: int = 1) -> list[Verified]:
         """Verify entries and store the results against their revision, like ``gravicat verify``.
@@ -329,6 +345,7 @@ class Catalogue:
         forked process (``jobs`` at a time) under the runner's CPU-time cap (10 s + ``budget`` per
         check); a chart that reaches it stores ``inconclusive`` results saying so.
         """
+        from gravicat.api.subjects import find_revision
         from gravicat.api.verifying import run_units, units_for
         from gravicat.engine.runner import result_from_json, select_verifiers
         from gravicat.registry import verifiers
@@ -341,10 +358,10 @@ class Catalogue:
             if subjects:
                 revs = []
                 for text in subjects:
-                    slug, rev, chart = split_subject(text)
-                    if chart:
+                    ref = _entry_ref(text, "verify")
+                    if ref.chart:
                         raise InputError(text, None, "verify stores results for whole entries; drop ':CHART'")
-                    revs.append(store.revision(s, slug, rev))
+                    revs.append(find_revision(s, ref))
             else:
                 revs = store.list_entries(s)
             units, keys = units_for(s, revs, chosen, force=force, budget=budget,
