@@ -432,3 +432,33 @@ def test_find_on_bundled(cat):
     hits = {e.id for e in cat.find(tag="black-hole")}
     assert {"kerr", "schwarzschild"} <= hits
     assert all("black-hole" in e.tags for e in cat.find(tag="black-hole"))
+
+
+def test_degenerate_metric_and_arbitrary_functions(cat):
+    """A metric with det g = 0 everywhere has no inverse: curvature is a one-line InputError, not a
+    library exception; a chart with an arbitrary function a(t) has no numbers."""
+    for name, chart_name in (("degenerate-everywhere.toml", "static-patch"), ("degenerate-5d.toml", "slip")):
+        chart = load_file(DATA / name).chart(chart_name)
+        with pytest.raises(InputError, match="degenerate") as err:
+            chart.christoffel()
+        assert "\n" not in str(err.value)
+    assert load_file(DATA / "degenerate-5d.toml").chart("static").ricci().shape == (5, 5)  # its sound chart
+    flrw = cat.get("flrw-flat").chart()
+    assert flrw.christoffel().shape == (4, 4, 4)  # exact curvature works with a(t)
+    with pytest.raises(InputError, match="arbitrary function"):
+        flrw.numeric()
+
+
+def test_five_dimensional_numeric(cat):
+    """Other dimensions: the five-dimensional Tangherlini chart, g_tt = -(1 - mu/r^2) (F. R. Tangherlini,
+    Nuovo Cimento 27 (1963) 636; form recalled from memory, mu the mass parameter of the file)."""
+    chart = cat.get("tangherlini-5d").chart()
+    assert chart.dimension == 5
+    f = chart.numeric()
+    x = np.array([[0, 3.0, 1.0, 0.7, 0.2], [0, 5.0, 0.5, 1.1, 1.0]])
+    g = f.metric(x)
+    assert g.shape == (2, 5, 5) and f.christoffel(x).shape == (2, 5, 5, 5)
+    np.testing.assert_allclose(np.einsum("...ij,...jk->...ik", g, f.inverse(x)), np.broadcast_to(np.eye(5), g.shape),
+                               atol=1e-12)
+    ref = _sympy_values(list(chart.metric), chart, f.parameters, x.tolist()).reshape(g.shape)
+    np.testing.assert_allclose(g, ref, rtol=RTOL, atol=ATOL)
