@@ -184,8 +184,29 @@ def test_help_for_every_command(cli):
 def test_init_loads_bundled_catalogue_idempotently(cli):
     from gravicat.store.revisions import bundled_files
 
-    first = cli("init")
+    first = cli("init", "--no-verify")
     assert first.exit_code == 0, first.output
     assert f"{len(bundled_files())} new" in first.stdout
-    second = cli("init")
+    assert "not verified yet: run 'gravicat verify --all'" in first.stdout
+    second = cli("init", "--no-verify")
     assert second.exit_code == 0 and f"{len(bundled_files())} unchanged" in second.stdout
+
+
+def test_init_verifies_what_it_loads_once(cli, monkeypatch):
+    """`init` verifies the bundled entries (so `export` works right after it); a second `init` reuses every
+    stored result. Two small bundled entries stand in for the whole bundled catalogue, to keep this fast."""
+    from gravicat.format.metricfile import load_file
+    from gravicat.store import revisions as store
+
+    small = [f for f in store.bundled_files() if f.name in ("minkowski.toml", "schwarzschild.toml")]
+    monkeypatch.setattr(store, "iter_bundled_documents", lambda: iter([load_file(f) for f in small]))
+    first = cli("init", "--jobs", "2")
+    assert first.exit_code == 0, first.output
+    assert "verified the bundled entries: 2 of 2 pass" in first.stdout
+    assert "computed now" not in first.stdout  # everything was computed now
+    exported = cli("export", "schwarzschild", "--to", "json")
+    assert exported.exit_code == 0, exported.stderr
+    assert {c["status"] for c in json.loads(exported.stdout)["checks"]} <= {"pass", "skipped"}
+    second = cli("init")
+    assert second.exit_code == 0, second.output
+    assert "2 of 2 pass (0 computed now, the rest already stored)" in second.stdout

@@ -183,7 +183,7 @@ def verify(
     Results already stored for the same revision hash and verifier version are reused unless --force.
     With --enqueue, one job per (revision, chart, verifier version) needing work is recorded instead.
     """
-    from gravicat.engine.runner import result_from_json, select_verifiers
+    from gravicat.engine.runner import select_verifiers
     from gravicat.registry import verifiers
     from gravicat.store import revisions as store
 
@@ -210,38 +210,9 @@ def verify(
         else:
             typer.echo(made.describe())
         return
-    units, keys = [], {}
-    with app_ctx.transaction() as session:
-        picked = ([_entry_subject(session, e) for e in entries] if entries
-                  else [(r, None) for r in store.list_entries(session)])
-        docs = {r.entry.slug: r.document for r in store.list_entries(session)}
-        for rev, only_chart in picked:
-            done = set() if force else store.stored_versions(session, rev)
-            keys[rev.id] = (rev.entry.slug, rev.hash)
-            for chart in rev.document["charts"]:
-                if only_chart is not None and chart != only_chart:
-                    continue
-                todo = [v.name for v in chosen if (chart, v.name, v.version) not in done]
-                if todo:
-                    units.append({"key": rev.id, "chart": chart, "document": rev.document,
-                                  "source": f"catalogue:{rev.entry.slug}@{rev.hash[:12]}", "verifiers": todo,
-                                  "docs": docs, "blocked": list(app_ctx.settings.disable_plugins),
-                                  "budget": budget})
-    outputs = _run_units(units, jobs)
-    with app_ctx.transaction() as session:
-        for out in outputs:
-            rev = session.get(store.Revision, out["key"])
-            store.save_results(session, rev, out["chart"], [result_from_json(r) for r in out["results"]])
-        summary = []
-        for rid, (slug, digest) in keys.items():
-            rev = session.get(store.Revision, rid)
-            rows = store.results_for(session, rev)
-            current = {(v.name, v.version) for v in chosen}
-            rows = [r for r in rows if (r.verifier, r.verifier_version) in current]
-            summary.append({"metric": slug, "revision": digest,
-                            "status": store.status_by_revision(session, [rid]).get(rid, "unverified"),
-                            "computed": sum(1 for u in units if u["key"] == rid),
-                            "checks": [store.record_to_json(r) for r in rows]})
+    summary = verify_revisions(app_ctx, lambda session: ([_entry_subject(session, e) for e in entries] if entries
+                                                         else [(r, None) for r in store.list_entries(session)]),
+                               chosen, force=force, budget=budget, jobs=jobs)
     failed = [s["metric"] for s in summary if s["status"] in ("fail", "error")]
     if as_json:
         emit_json({"entries": summary, "status": "fail" if failed else "pass"})
@@ -253,6 +224,41 @@ def verify(
         if as_json:
             raise typer.Exit(1)
         raise CheckFailed(f"{len(failed)} entr{'y' if len(failed) == 1 else 'ies'} failed: {', '.join(failed)}")
+
+
+def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: float, jobs: int) -> list[dict]:
+    """Verify what ``pick(session)`` returns ((stored revision, chart or None) pairs) and store the
+    results, as ``verify`` does; one summary row per revision (the ``verify --json`` shape).
+
+    The units are read in one transaction, run outside any (forked children under CPU-time caps),
+    and their results stored in a second one."""
+    from gravicat.api.verifying import units_for
+    from gravicat.engine.runner import result_from_json
+    from gravicat.store import revisions as store
+
+    with app_ctx.transaction() as session:
+        revs, only = {}, {}  # each revision once; the charts named with :CHART (None: every chart)
+        for rev, chart in pick(session):
+            revs.setdefault(rev.id, rev)
+            only[rev.id] = None if chart is None or only.get(rev.id, set()) is None else {*only.get(rev.id, ()), chart}
+        units, keys = units_for(session, list(revs.values()), chosen, force=force, budget=budget,
+                                blocked=app_ctx.settings.disable_plugins)
+        units = [u for u in units if only[u["key"]] is None or u["chart"] in only[u["key"]]]
+    outputs = _run_units(units, jobs, chosen)
+    with app_ctx.transaction() as session:
+        for out in outputs:
+            rev = session.get(store.Revision, out["key"])
+            store.save_results(session, rev, out["chart"], [result_from_json(r) for r in out["results"]])
+        summary = []
+        current = {(v.name, v.version) for v in chosen}
+        for rid, (slug, digest) in keys.items():
+            rev = session.get(store.Revision, rid)
+            rows = [r for r in store.results_for(session, rev) if (r.verifier, r.verifier_version) in current]
+            summary.append({"metric": slug, "revision": digest,
+                            "status": store.status_by_revision(session, [rid]).get(rid, "unverified"),
+                            "computed": sum(1 for u in units if u["key"] == rid),
+                            "checks": [store.record_to_json(r) for r in rows]})
+    return summary
 
 
 def _entry_subject(session, text: str):
@@ -269,40 +275,19 @@ def _entry_subject(session, text: str):
     return rev, check_chart(ref, store.document_of(rev))
 
 
-def _run_units(units: list[dict], jobs: int) -> list[dict]:
-    from gravicat.engine.runner import run_unit
+def _run_units(units: list[dict], jobs: int, chosen) -> list[dict]:
+    """Run the units through the library's runner (each chart in a forked child under its CPU-time
+    cap, :func:`gravicat.api.verifying.run_units`); a progress bar on a terminal, quiet otherwise."""
+    from gravicat.api.verifying import run_units
 
-    if not units:
-        return []
-    show = sys.stderr.isatty()
-    outputs = []
-    if jobs == 1:
-        iterator = map(run_unit, units)
-        if show:
-            with typer.progressbar(iterator, length=len(units), label="verifying", file=sys.stderr) as bar:
-                return list(bar)
-        return list(iterator)
-    import gc
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-
-    import gravicat.engine.geometry  # noqa: F401 - sympy and flint once, inherited by every forked worker
-
-    gc.freeze()  # the workers' collections then leave the inherited objects alone (no copy-on-write)
-    try:
-        # heaviest first, so that the long charts do not end up last on one core
-        order = sorted(units, key=lambda u: -len(str(u["document"]["charts"][u["chart"]])))
-        with ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context("fork")) as pool:
-            futures = [pool.submit(run_unit, u) for u in order]
-            if show:
-                with typer.progressbar(length=len(futures), label="verifying", file=sys.stderr) as bar:
-                    for fut in as_completed(futures):
-                        outputs.append(fut.result())
-                        bar.update(1)
-            else:
-                outputs = [f.result() for f in as_completed(futures)]
-    finally:
-        gc.unfreeze()
+    if not units or not sys.stderr.isatty():
+        return run_units(units, jobs, chosen)
+    outputs: list[dict] = []
+    with typer.progressbar(length=len(units), label="verifying", file=sys.stderr) as bar:
+        for start in range(0, len(units), jobs):  # one batch of --jobs charts at a time, to show progress
+            batch = units[start:start + jobs]
+            outputs.extend(run_units(batch, jobs, chosen))
+            bar.update(len(batch))
     return outputs
 
 

@@ -19,8 +19,19 @@ JsonOpt = Annotated[bool, typer.Option("--json", help="Print JSON (documented sh
 @app.command("init")
 @reports_errors
 def init(ctx: typer.Context,
-         empty: Annotated[bool, typer.Option("--empty", help="Do not load the bundled catalogue.")] = False) -> None:
-    """Create or upgrade the catalogue and load the bundled reference entries."""
+         empty: Annotated[bool, typer.Option("--empty", help="Do not load the bundled catalogue.")] = False,
+         no_verify: Annotated[bool, typer.Option("--no-verify", help="Load the bundled entries without verifying "
+                                                                     "them (then run 'gravicat verify --all' "
+                                                                     "before exporting).")] = False,
+         jobs: Annotated[int | None, typer.Option(
+             "--jobs", "-j", min=1, show_default=False,
+             help="Charts verified at the same time [default: the number of cores].")] = None) -> None:
+    """Create or upgrade the catalogue, load the bundled reference entries and verify them.
+
+    Verification is the same as 'gravicat verify' (each chart in its own process under a CPU-time
+    cap) and reuses stored results, so a second 'init' verifies nothing already verified. A progress
+    bar is shown on a terminal.
+    """
     from gravicat import __version__
     from gravicat.store import revisions as store
     from gravicat.store.db import safe_url
@@ -36,6 +47,32 @@ def init(ctx: typer.Context,
     typer.echo(f"catalogue ready at {safe_url(app_ctx.settings.database)}: {total} entries"
                + ("" if empty else f" (bundled: {counts['new']} new, {counts['revised']} updated, "
                                    f"{counts['unchanged']} unchanged)"))
+    if not docs:
+        return
+    if no_verify:
+        typer.echo("the bundled entries are not verified yet: run 'gravicat verify --all' before exporting "
+                   "(or export with --allow-unverified)")
+        return
+    _verify_bundled(app_ctx, [d.id for d in docs], jobs)
+
+
+def _verify_bundled(app_ctx, slugs: list[str], jobs: int | None) -> None:
+    """Verify the latest revision of each bundled entry, reusing stored results (as 'verify')."""
+    from gravicat.cli.checks import verify_revisions
+    from gravicat.engine.fork import default_jobs
+    from gravicat.engine.runner import select_verifiers
+    from gravicat.registry import verifiers
+    from gravicat.store import revisions as store
+
+    chosen = select_verifiers(verifiers(app_ctx.plugins), None)
+    summary = verify_revisions(app_ctx, lambda session: [(store.head(session, s), None) for s in slugs],
+                               chosen, force=False, budget=20.0, jobs=jobs or default_jobs())
+    computed = sum(1 for s in summary if s["computed"])
+    passing = sum(1 for s in summary if s["status"] == "pass")
+    others = [f"{s['metric']} ({s['status']})" for s in summary if s["status"] != "pass"]
+    typer.echo(f"verified the bundled entries: {passing} of {len(summary)} pass"
+               + (f" ({computed} computed now, the rest already stored)" if computed < len(summary) else "")
+               + (f"; not passing: {', '.join(others)} (see 'gravicat show ID')" if others else ""))
 
 
 def validate_files(paths: list[Path], pm) -> list:
