@@ -49,6 +49,23 @@ def empty_catalogue(cli):
     return cli
 
 
+@pytest.fixture
+def python_target(monkeypatch):
+    """Make sure the python export target is loaded, also before its entry point is installed."""
+    from gravicat import registry
+    from gravicat.plugins import python_export
+
+    real = registry.make_plugin_manager
+
+    def with_python(**kw):
+        pm = real(**kw)
+        if "python" not in registry.exporters(pm) and "python-export" not in set(kw.get("blocked", ())):
+            pm.register(python_export, name="python-export")
+        return pm
+
+    monkeypatch.setattr(registry, "make_plugin_manager", with_python)
+
+
 def dump(path: Path) -> list[str]:
     """The whole content of a SQLite database as SQL text (independent of page layout)."""
     con = sqlite3.connect(path)

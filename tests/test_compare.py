@@ -316,7 +316,10 @@ def test_compare_entries_from_the_catalogue(empty_catalogue, db_url):
 @pytest.mark.parametrize("args, where", [
     (("--match", "q=0"), "--match: q: not a parameter"),
     (("--match", "a=2*M"), "outside its range"),
-    (("--match", "a"), "is not NAME=EXPRESSION"),
+    (("--match", "a"), "--match: 'a' is not NAME=VALUE"),
+    (("--match", "a=0,a=0"), "--match: a: given more than once"),
+    (("--match", "a=0", "--match", "a=0"), "--match: a: given more than once"),
+    (("--map", "r"), "--map: 'r' is not NAME=VALUE"),
     (("--map", "r=__import__('os')"), "--map"),
     (("--map", "r=r*foo"), "foo"),
     (("--map", "x=r"), "must all be coordinates"),

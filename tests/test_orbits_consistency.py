@@ -129,8 +129,15 @@ def test_circular_orbits_agree_with_probe_integrations(entry, chart):
         # start at azimuth pi and integrate 0.45 revolutions: stays inside a chart with 0 < phi < 2 pi
         start = f"{names['radial']}={r!r},{names['azimuthal']}=pi" + (f",{names['polar']}=pi/2"
                                                                           if names["polar"] else "")
-        out = probe(doc, EXPORTER, chart=chart, params=",".join(texts) or None, start=start, orbit="circular",
-                    direction=d, orbits=0.45, azimuth=names["azimuthal"])
+        try:
+            out = probe(doc, EXPORTER, chart=chart, params=",".join(texts) or None, start=start, orbit="circular",
+                        direction=d, orbits=0.45, azimuth=names["azimuthal"])
+        except InputError as exc:
+            # Hopf-type charts of five dimensions (0 < theta < pi/2) have their equator theta = pi/2 on the edge
+            # of the chart's domain, where the probe does not start; orbits evaluates the limit there
+            if entry in MUST_COVER or "outside the domain" not in str(exc) or "theta < pi/2" not in str(exc):
+                raise
+            continue
         assert out["termination"] == "completed", out["detail"]
         # Omega from the probe's own root of the geodesic equation: rel 1e-9 (two float evaluations of the
         # metric derivatives, conditioning of the quadratic)

@@ -22,7 +22,6 @@ import pytest
 
 from gravicat import InputError, NotFound
 from gravicat.physics.probe import probe
-from gravicat.plugins import python_export
 from gravicat.plugins.python_export import PythonExporter
 from gravicat.store import revisions as store
 
@@ -139,22 +138,6 @@ def test_bad_probe_input_is_one_line_error(entry, kw, field, words):
 # --------------------------------------------------------------------------- command line
 
 
-@pytest.fixture
-def python_target(monkeypatch):
-    """Make sure the python export target is loaded, also before its entry point is installed."""
-    from gravicat import registry
-
-    real = registry.make_plugin_manager
-
-    def with_python(**kw):
-        pm = real(**kw)
-        if "python" not in registry.exporters(pm) and "python-export" not in set(kw.get("blocked", ())):
-            pm.register(python_export, name="python-export")
-        return pm
-
-    monkeypatch.setattr(registry, "make_plugin_manager", with_python)
-
-
 def test_cli_probe_file_json(cli, python_target):
     path = SPACETIMES / "kerr.toml"
     result = cli("probe", str(path), "--params", "M=1,a=0.9", "--from", "r=10,theta=pi/2", "--orbits", "3",
@@ -188,3 +171,15 @@ def test_cli_probe_without_the_python_target(cli, monkeypatch):
     result = cli("probe", str(SPACETIMES / "schwarzschild.toml"), "--from", "r=10,theta=pi/2")
     assert result.exit_code == 2 and "'python' export target" in result.stderr
     assert NotFound.exit_code == 2
+
+
+def test_parameters_as_repeated_set_items_or_one_text_are_the_same():
+    # one NAME=VALUE parser: ["M=1", "a=0.9"] (repetitions of --set), "M=1,a=0.9" and a mapping agree exactly
+    kw = {"start": "r=10,theta=pi/2", "orbit": "circular", "orbits": 1}
+    one = run("kerr", params="M=1,a=0.9", **kw)
+    assert run("kerr", params=["M=1", "a=0.9"], **kw)["parameters"] == one["parameters"]
+    assert run("kerr", params={"M": 1, "a": "9/10"}, **kw)["parameters"] == one["parameters"]
+    with pytest.raises(InputError) as err:
+        run("kerr", params=["M=1", "M=2"], **kw)
+    assert str(err.value).startswith("--set: M: given more than once")
+

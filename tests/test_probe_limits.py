@@ -36,11 +36,31 @@ def test_step_cap_stops_after_max_steps():
     out = run("schwarzschild", **LONG, max_steps=3)
     assert out["termination"] == "step-limit"
     assert "step cap of 3 steps" in out["detail"] and "--max-steps" in out["detail"]
-    assert out["steps"] <= 4  # the accepted steps, plus at most the step cut at the cap
+    assert out["steps"] == 3  # exactly the steps allowed: the solution ends at the end of the third
     assert 0 < out["tau"] and out["circular"]["orbits"] < 1  # far short of the 100 orbits asked for
     assert out["integrator"]["max_steps"] == 3
     # what was integrated is still a geodesic: the start is on the circular orbit and stays there
     assert out["drift"]["normalisation"] < 1e-12
+
+
+@pytest.mark.parametrize("cap", [1, 2, 7])
+def test_a_cap_of_n_steps_reports_n_steps(cap):
+    out = run("schwarzschild", **LONG, max_steps=cap)
+    assert out["termination"] == "step-limit" and out["steps"] == cap
+    assert f"step cap of {cap} steps" in out["detail"]
+
+
+def test_an_integration_that_ends_on_its_last_allowed_step_is_complete():
+    whole = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="circular", orbits=2)
+    assert whole["termination"] == "completed"
+    n = whole["steps"]
+    exact = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="circular", orbits=2, max_steps=n)
+    assert exact["termination"] == "completed" and exact["steps"] == n
+    # the same steps, so the same end point (floats compared with a tolerance of rounding, rel 1e-14)
+    assert exact["tau"] == pytest.approx(whole["tau"], rel=1e-14)
+    short = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="circular", orbits=2,
+                max_steps=n - 1)
+    assert short["termination"] == "step-limit" and short["steps"] == n - 1 and short["tau"] < whole["tau"]
 
 
 def test_cpu_cap_stops_the_integration():
@@ -98,23 +118,6 @@ def test_radial_plunge_stops_at_the_horizon_of_the_time_coordinate(tmp_path):
 
 
 # --------------------------------------------------------------------------- command line
-
-
-@pytest.fixture
-def python_target(monkeypatch):
-    """Make sure the python export target is loaded, also before its entry point is installed."""
-    from gravicat import registry
-    from gravicat.plugins import python_export
-
-    real = registry.make_plugin_manager
-
-    def with_python(**kw):
-        pm = real(**kw)
-        if "python" not in registry.exporters(pm) and "python-export" not in set(kw.get("blocked", ())):
-            pm.register(python_export, name="python-export")
-        return pm
-
-    monkeypatch.setattr(registry, "make_plugin_manager", with_python)
 
 
 ARGS = ("--from", "r=10,theta=pi/2", "--orbits", "100")

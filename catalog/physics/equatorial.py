@@ -104,6 +104,7 @@ class EquatorialChart:
         self.rotating = series[3] != 0
         self.args = (r, *spec.params)
         self._np_series = sp.lambdify(self.args, series, modules="numpy")
+        self._np_components = sp.lambdify(self.args, list(self.components), modules="numpy")
         self._mp_series = sp.lambdify(self.args, series, modules="mpmath")
         zero = sp.zeros(self.n, self.n)
         full = [flat, flat.diff(r), g.diff(polar).subs(on_equator) if polar is not None else zero]
@@ -201,11 +202,20 @@ class Equatorial(RootSearch, LandmarkSearch):
         return self._mp_params
 
     def series_np(self, r):
+        """A, A', A'', B, B', B'', C, C', C'' at the radii ``r`` (floats; nan where not real)."""
+        return self._real_np(self.chart._np_series, r)
+
+    def components_np(self, r):
+        """A, B, C (g_tt, g_tphi, g_phiphi on the equator) at the radii ``r``: the cheaper part of
+        :meth:`series_np` that the effective potential needs."""
+        return self._real_np(self.chart._np_components, r)
+
+    def _real_np(self, fn, r):
         import numpy as np
 
         r = np.asarray(r, dtype=float)
         with np.errstate(all="ignore"):
-            raw = self.chart._np_series(r, *self._pf)
+            raw = fn(r, *self._pf)
         out = []
         for v in raw:
             v = np.asarray(v)
@@ -426,6 +436,20 @@ class Equatorial(RootSearch, LandmarkSearch):
                         hi = value if hi is None else min(hi, value)
         return lo, hi
 
+    def radius_in_domain(self, radius: float) -> bool:
+        """False when a relation of the chart's domain in the radial coordinate and the parameters alone (such as
+        3*r**2 < R**2 - a**2) fails at ``radius``; relations that involve other coordinates are not judged here."""
+        import sympy as sp
+
+        r = self.chart.radial
+        point = {**self._exact, r: sp.Float(radius, DPS)}
+        for rel in self.chart.spec.domain:
+            if not rel.has(r) or not rel.free_symbols <= set(point):
+                continue
+            if rel.subs(point) is sp.false:
+                return False
+        return True
+
     @cached_property
     def inner_edge(self) -> float:
         """Where the search for orbits starts: the black-hole horizon bounding the region, or the chart's lower
@@ -460,7 +484,8 @@ class Equatorial(RootSearch, LandmarkSearch):
         if hi is not None and radius >= hi:
             return {**out, "exists": False, "reason": f"beyond the cosmological horizon r = {hi:.10g}"}
         lower, upper = self.domain_bounds
-        if (lower is not None and radius <= lower) or (upper is not None and radius >= upper):
+        if (lower is not None and radius <= lower) or (upper is not None and radius >= upper) or \
+                not self.radius_in_domain(radius):
             return {**out, "exists": False, "reason": "outside the chart's domain"}
         with mpmath.workdps(DPS):
             o = self.orbit_mp(radius, direction)

@@ -10,14 +10,14 @@ from collections.abc import Sequence
 from gravicat.errors import InputError
 from gravicat.physics.equivalence_sides import (
     Evidence,
+    _assignments,
     _compatible,
     _depends,
     _limited,
     _parse,
     _short,
     _Side,
-    _split_item,
-    _sstr,
+        _sstr,
 )
 
 # --------------------------------------------------------------------------- identical up to renaming
@@ -135,7 +135,7 @@ def _user_map(a: _Side, b: _Side, items: Sequence[str], budget: float) -> tuple[
     """Parse --map items (coordinates of one chart in terms of the other's) and test the pull-back."""
     from gravicat.errors import UnsafeExpression
 
-    pairs = [_split_item(item, "--map") for item in items]
+    pairs = _assignments(items, "--map")
     lhs = [name for name, _ in pairs]
     if len(set(lhs)) != len(lhs):
         raise InputError("--map", None, "a coordinate is given twice")

@@ -60,13 +60,15 @@ class Comparison:
 # --------------------------------------------------------------------------- helpers
 
 
-def _split_item(item: str, option: str) -> tuple[str, str]:
-    name, eq, text = item.partition("=")
-    name = name.strip()
-    if not eq or not name or not text.strip():
-        raise InputError(option, None, f"'{item}' is not NAME=EXPRESSION (e.g. {option} "
-                                       f"{'Q=e' if option == '--match' else 'r=R*(1+M/(2*R))**2'})")
-    return name, text.strip()
+def _assignments(items: Sequence[str], option: str) -> list[tuple[str, str]]:
+    """``(name, text)`` pairs of a repeatable ``NAME=EXPR`` option (``--match``, ``--map``).
+
+    Split by the one ``NAME=VALUE`` parser (:mod:`gravicat.format.assign`): an item may hold
+    several comma-separated assignments, and a malformed one reads as in every other command.
+    """
+    from gravicat.format.assign import split_assignments
+
+    return [pair for item in items for pair in split_assignments(item, option)]
 
 
 def _parse(text: str, env: dict[str, Any], coordinates: Sequence[str], option: str, name: str):
@@ -188,21 +190,26 @@ def _unify(a: _Side, b: _Side, match: Sequence[str]):
     sub_a: dict[Any, Any] = {}
     sub_b: dict[Any, Any] = {}
     shown: dict[str, str] = {}
-    for item in match:
-        name, text = _split_item(item, "--match")
-        if name in pb:
-            if pb[name] in sub_b:
-                raise InputError("--match", name, "given twice")
-            sub_b[pb[name]] = _parse(text, pa, (), "--match", name)
-            shown[f"B.{name}"] = _sstr(sub_b[pb[name]])
-        elif name in pa:
-            if pa[name] in sub_a:
-                raise InputError("--match", name, "given twice")
-            sub_a[pa[name]] = _parse(text, pb, (), "--match", name)
-            shown[f"A.{name}"] = _sstr(sub_a[pa[name]])
-        else:
+    from gravicat.format.assign import parse_assignments
+
+    pairs = _assignments(match, "--match")
+    for name, _text in pairs:
+        if name not in pb and name not in pa:
             raise InputError("--match", name, f"not a parameter of A ({', '.join(pa) or 'none'}) "
                                               f"or B ({', '.join(pb) or 'none'})")
+    # B's parameters in terms of A's, and A's (named only by A) in terms of B's: each value is an
+    # expression in the other side's parameters, read by the one NAME=VALUE parser
+    to_b = parse_assignments([f"{n}={t}" for n, t in pairs if n in pb], "--match", allowed=pb, env=pa,
+                             kind="parameter of B", numbers=False, chained=False)
+    to_a = parse_assignments([f"{n}={t}" for n, t in pairs if n not in pb], "--match", allowed=pa, env=pb,
+                             kind="parameter of A", numbers=False, chained=False)
+    for name, _text in pairs:
+        if name in to_b:
+            sub_b[pb[name]] = to_b[name]
+            shown[f"B.{name}"] = _sstr(to_b[name])
+        else:
+            sub_a[pa[name]] = to_a[name]
+            shown[f"A.{name}"] = _sstr(to_a[name])
     identified: set[str] = set()
     conflicts: list[str] = []
     for name, sym in pb.items():

@@ -33,8 +33,7 @@ class LandmarkSearch:
         potential): g^tt E**2 - 2 g^tphi E L + g^phiphi L**2 = -1, future root, E = (-B L + sqrt(D (L**2 + C)))/C."""
         import numpy as np
 
-        m = self.series_np(r)
-        A, B, C = m[0], m[3], m[6]
+        A, B, C = self.components_np(r)
         with np.errstate(all="ignore"):
             D = B * B - A * C
             return (-B * L + np.sqrt(D * (L * L + C))) / C
@@ -44,7 +43,6 @@ class LandmarkSearch:
         edge: a particle with less energy cannot escape outward. 1 (the rest energy far away) in an
         asymptotically flat region; infinite when the potential grows without limit (anti-de Sitter)."""
         import numpy as np
-        from scipy.optimize import minimize_scalar
 
         hi = self.outer_edge
         if not hi > radius:
@@ -59,20 +57,15 @@ class LandmarkSearch:
         if self.cosmological_horizon is None and self.domain_bounds[1] is None and not self.asymptotically_flat \
                 and ok[-1] and ok[-2] and v[-1] > v[-2]:
             return math.inf  # still rising far out: the potential grows without limit (anti-de Sitter)
-        # every interior local maximum, refined (at a marginally bound orbit the inner maximum, at r itself, and
-        # the outer one are nearly equal, so the grid alone cannot tell which is higher)
+        # every interior local maximum of the grid is refined (at a marginally bound orbit the inner maximum, at r
+        # itself, and the outer one are nearly equal, so the grid alone cannot tell which is higher); all of them
+        # at once, so a plateau of rounding noise (a potential constant in r, as in the Einstein static universe)
+        # costs no more than one peak, and no peak is dropped for looking like another. The value at a maximum
+        # changes quadratically with the radius, so r to 1e-9 (relative) fixes it to rounding.
         peaks = np.nonzero((w[1:-1] >= w[:-2]) & (w[1:-1] >= w[2:]) & ok[1:-1])[0] + 1
-        # rounding noise on a plateau (a potential constant in r, as in the Einstein static universe) makes
-        # many grid 'peaks' of one value: refine one of each value (12 significant digits)
-        seen: set[str] = set()
-        peaks = [k for k in peaks if f"{w[k]:.12g}" not in seen and not seen.add(f"{w[k]:.12g}")]
-        for k in peaks:
-            with np.errstate(all="ignore"):
-                res = minimize_scalar(lambda y: -float(self.potential_np(np.array([y]), L)[0]),
-                                      bounds=(float(x[k - 1]), float(x[k + 1])), method="bounded",
-                                      options={"xatol": 1e-12 * float(x[k])})
-            if np.isfinite(res.fun):
-                best = max(best, -float(res.fun))
+        if len(peaks):
+            best = max(best, _golden_max(lambda y: self.potential_np(y, L), x[peaks - 1], x[peaks + 1],
+                                         1e-9 * x[peaks]))
         if self.asymptotically_flat:
             best = max(best, 1.0)
         return best
@@ -185,3 +178,52 @@ class LandmarkSearch:
                 listed = absent[0] if len(absent) == 1 else ", ".join(absent[:-1]) + " or " + absent[-1]
                 self.notes.append(f"{d}: no {listed} found for r in ({lo:.6g}, {hi:.6g})")
         return out
+
+
+GOLDEN = (math.sqrt(5) - 1) / 2
+
+
+def _golden_max(fn, a, b, tol, max_iter: int = 200) -> float:
+    """The highest value of ``fn`` near a local maximum in every bracket [a_i, b_i], all at once.
+
+    ``fn`` is vectorised (one call per iteration evaluates one new point in each bracket). Each
+    bracket shrinks by the golden ratio per iteration, towards a local maximum of ``fn`` inside
+    it (a grid point above both bracket ends guarantees one), until it is narrower than ``tol_i``
+    or 1e-5 of its position; a parabolic step then lands on the maximum. Values that are not
+    finite count as -infinity. Returns -inf if none is finite.
+    """
+    import numpy as np
+
+    def f(y):
+        with np.errstate(all="ignore"):
+            v = np.asarray(fn(y), dtype=float)
+        return np.where(np.isfinite(v), v, -np.inf)
+
+    a, b, tol = (np.array(v, dtype=float) for v in (a, b, tol))
+    c, d = b - GOLDEN * (b - a), a + GOLDEN * (b - a)
+    fc, fd = f(c), f(d)
+    best = float(max(np.max(fc), np.max(fd)))
+    coarse = np.maximum(tol, 1e-5 * (np.abs(a) + np.abs(b)))
+    for _ in range(max_iter):
+        if np.all(b - a <= coarse):
+            break
+        left = fc >= fd  # a maximum lies in [a, d]: d becomes the right end, c the new upper point
+        a, b = np.where(left, a, c), np.where(left, d, b)
+        new = np.where(left, b - GOLDEN * (b - a), a + GOLDEN * (b - a))
+        value = f(new)
+        c, d, fc, fd = (np.where(left, new, d), np.where(left, c, new),
+                        np.where(left, value, fd), np.where(left, fc, value))
+        best = max(best, float(np.max(value)))
+    # then one parabola through three points of each narrow bracket: its vertex is within O(h**2) of the
+    # maximum, where the value is off by O(h**4), far below rounding; the value there is evaluated, not
+    # extrapolated, so the result never exceeds a value the function takes
+    m, h = (a + b) / 2, (b - a) / 4
+    n = len(m)
+    values = f(np.concatenate([m - h, m, m + h]))
+    lo, mid, up = values[:n], values[n:2 * n], values[2 * n:]
+    best = max(best, float(np.max(values)))
+    with np.errstate(all="ignore"):
+        curve = up - 2 * mid + lo
+        shift = np.where(curve < 0, -h * (up - lo) / (2 * curve), 0.0)
+    vertex = m + np.clip(np.nan_to_num(shift), -2 * h, 2 * h)
+    return max(best, float(np.max(f(vertex))))

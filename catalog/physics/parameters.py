@@ -36,22 +36,17 @@ class Parameters:
 
 
 def parse_number(text: str, *, source: str, field: str, env: Mapping[str, Any] | None = None):
-    """A real, finite number from untrusted text (whitelist parser; ``env`` names allowed)."""
-    import sympy
+    """A real, finite number from untrusted text (whitelist parser; ``env`` names allowed).
 
+    The checks and their messages are those of every ``NAME=VALUE`` option
+    (:func:`gravicat.format.assign.real_number`).
+    """
+    from gravicat.format.assign import real_number
     from gravicat.format.expr import Names, check_expression, to_sympy
 
     env = dict(env or {})
     tree = check_expression(text, Names(symbols=frozenset(env)), source=source, field=field)
-    value = to_sympy(tree, env)
-    if not getattr(value, "is_number", False):
-        raise InputError(source, field, f"'{text}' is not a number")
-    if value.has(sympy.zoo, sympy.oo, -sympy.oo, sympy.nan):
-        raise InputError(source, field, f"'{text}' is not a finite number")
-    re_part, im_part = value.evalf(30).as_real_imag()
-    if im_part != 0 or not re_part.is_number or not re_part.is_finite:
-        raise InputError(source, field, f"'{text}' is not a real number")
-    return value if value.is_real else re_part
+    return real_number(to_sympy(tree, env), source, field, text)
 
 
 def is_mass_parameter(doc, name: str) -> bool:
@@ -69,9 +64,15 @@ def _show(value) -> str:
     return f"{float(value):.10g}"
 
 
-def resolve_parameters(doc, spec, settings: Iterable[str] = (), *, units: str = "geometrized",
-                       source: str = "--set") -> Parameters:
+def resolve_parameters(doc, spec, settings: str | Iterable[str] | Mapping[str, Any] = (), *,
+                       units: str = "geometrized", source: str = "--set") -> Parameters:
     """Parameter values from ``NAME=VALUE`` texts, defaults, unit conversion and range checks.
+
+    ``settings``: the texts of a repeatable ``--set`` (each may hold several comma-separated
+    assignments: ``["M=1,a=0.9"]`` and ``["M=1", "a=0.9"]`` are the same), one such text, or a
+    mapping name -> value. They are read by the one ``NAME=VALUE`` parser
+    (:func:`gravicat.format.assign.parse_assignments`); in geometrized units a value may use the
+    parameters assigned before it (``M=2,a=M/2``; not with ``units="si"``, where they differ in kind).
 
     Raises :class:`InputError` (one line, naming the parameter) for a malformed or
     unknown setting, a missing value without default, or a value outside the
@@ -81,26 +82,20 @@ def resolve_parameters(doc, spec, settings: Iterable[str] = (), *, units: str = 
     """
     import sympy
 
+    from gravicat.format.assign import parse_assignments, split_assignments
     from gravicat.format.expr import Names, check_relation, relation_to_sympy
 
     if units not in U.SYSTEMS:
         raise InputError("--units", None, f"'{units}' is not one of {', '.join(U.SYSTEMS)}")
     symbols = {str(p): p for p in spec.params}
-    listed = ", ".join(symbols) or "none"
-    exact: dict[str, Any] = {}
-    given: dict[str, str] = {}
+    if isinstance(settings, Mapping):
+        items = [f"{name}={value}" for name, value in settings.items()]
+    else:
+        items = [settings] if isinstance(settings, str) else list(settings)
+    exact: dict[str, Any] = parse_assignments(items, source, allowed=symbols, kind="parameter", owner=spec.entry,
+                                                chained=units != "si")
+    given: dict[str, str] = {name: text for item in items for name, text in split_assignments(item, source)}
     notes: list[str] = []
-    for item in settings:
-        name, sep, text = item.partition("=")
-        name = name.strip()
-        if not sep or not name or not text.strip():
-            raise InputError(source, None, f"'{item}' is not NAME=VALUE")
-        if name not in symbols:
-            raise InputError(source, name, f"not a parameter of {spec.entry} (parameters: {listed})")
-        if name in given:
-            raise InputError(source, name, "given more than once")
-        exact[name] = parse_number(text, source=source, field=name)
-        given[name] = text.strip()
     if units == "si":
         c2 = sympy.Integer(int(U.C)) ** 2
         for name in list(exact):

@@ -53,13 +53,14 @@ LIMITS = {"step-limit", "cpu-limit"}  # terminations that leave the requested in
 
 class _Caps:
     """A terminal event of ``solve_ivp`` that stops the integration after ``max_steps`` accepted steps or
-    ``max_cpu`` CPU seconds. It is called once per accepted step; once a cap is reached it becomes
-    ``t_stop - t`` with t_stop between the last two steps, so the event's root (and the end of the
-    solution) is there."""
+    ``max_cpu`` CPU seconds. It is called at the start point and once per accepted step; when a cap is
+    reached at the end of a step it becomes ``t_stop - t`` with ``t_stop`` that step's end, so the event's
+    root, and the end of the solution, is exactly the last accepted step: a cap of N steps reports N.
+    A cap reached by the step that ends the integration (at ``t_end``) does not stop it: it is complete."""
 
-    def __init__(self, max_steps: int, max_cpu: float):
-        self.max_steps, self.max_cpu = max_steps, max_cpu
-        self.calls, self.t_prev, self.t_stop, self.reason = 0, 0.0, None, None
+    def __init__(self, max_steps: int, max_cpu: float, t_end: float = math.inf):
+        self.max_steps, self.max_cpu, self.t_end = max_steps, max_cpu, t_end
+        self.calls, self.t_stop, self.reason = 0, None, None
         self.cpu0 = time.process_time()
         self.terminal, self.direction = True, -1
 
@@ -67,15 +68,18 @@ class _Caps:
         if self.t_stop is not None:
             return self.t_stop - t
         self.calls += 1
-        if self.calls > self.max_steps + 1:  # the first call is the start point
+        if self.calls == 1 or t == self.t_end:  # the start point; or the last step, already complete
+            return 1.0
+        if self.calls > self.max_steps:  # after step k, calls = k + 1
             self.reason = "step-limit"
         elif time.process_time() - self.cpu0 > self.max_cpu:
             self.reason = "cpu-limit"
         if self.reason is None:
-            self.t_prev = t
             return 1.0
-        self.t_stop = (self.t_prev + t) / 2
-        return self.t_stop - t
+        self.t_stop = t
+        return 0.0
+
+
 _MODULES: dict = {}
 
 
@@ -108,16 +112,22 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
           direction: str = "prograde", velocity: str | None = None, azimuth: str | None = None,
           tau: float | None = None, orbits: float | None = None, rtol: float = 1e-12, atol: float = 1e-12,
           max_steps: int = MAX_STEPS, max_cpu: float = MAX_CPU,
-          context: Mapping[str, Any] | None = None) -> dict[str, Any]:
+          context: Mapping[str, Any] | None = None, params_option: str = "--set") -> dict[str, Any]:
     """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``).
 
     The integration stops at the edge of the chart's domain, on approach to a horizon of the time coordinate
     (u^t beyond HORIZON_GROWTH times its start value), after ``max_steps`` accepted steps or after ``max_cpu``
-    CPU seconds; ``termination`` says which (``step-limit`` and ``cpu-limit`` leave it unfinished)."""
+    CPU seconds; ``termination`` says which (``step-limit`` and ``cpu-limit`` leave it unfinished).
+
+    ``params``: None (the file's defaults), ``NAME=VALUE`` option text, a list of such texts (one per
+    repetition of ``--set``) or a mapping name -> value; ``start`` and ``velocity`` are ``NAME=VALUE``
+    texts too. All are read by the one parser, :mod:`gravicat.format.assign`; its errors name
+    ``params_option``, ``--from`` or ``--velocity``."""
     import numpy as np
     from scipy.integrate import solve_ivp
 
-    from gravicat.export.codegen import chart_name, numeric_parameters, parse_assignments, provenance
+    from gravicat.export.codegen import chart_name, numeric_parameters, provenance
+    from gravicat.format.assign import parse_assignments
     from gravicat.format.metricfile import build_chart
 
     if orbit not in ORBITS:
@@ -139,7 +149,9 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         raise InputError(document.source, f"charts.{chart}.functions",
                          f"the metric depends on the arbitrary function(s) {', '.join(map(str, spec.functions))}; "
                          f"the probe needs numeric code")
-    values = numeric_parameters(document, spec, params)
+    if isinstance(params, (list, tuple)):  # repetitions of --set: the same as one comma-separated text
+        params = ",".join(params)
+    values = numeric_parameters(document, spec, params, params_option)
     pvals = _float_values(values)
     coords = [str(c) for c in spec.coords]
     n = len(coords)
@@ -221,7 +233,7 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
 
     horizon.terminal, horizon.direction = True, -1
     events.append(horizon)
-    caps = _Caps(max_steps, max_cpu)
+    caps = _Caps(max_steps, max_cpu, tau)
     events.append(caps)
     started = time.perf_counter()
     with np.errstate(all="ignore"):

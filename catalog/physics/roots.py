@@ -115,6 +115,12 @@ class RootSearch:
         import sympy as sp
 
         r = self.chart.radial
+        params = set(self._exact)
+        if any(p.exp.free_symbols & params for p in expr.atoms(sp.Pow)):
+            # a parameter in an exponent (r**(4*sigma), as in Levi-Civita-type metrics): exact rational powers
+            # of drawn values can take sympy unbounded memory, and the numerator is no polynomial anyway; the
+            # grid scan takes the values at DPS + 10 digits
+            return self._scan_any(expr.subs({k: sp.Float(v, DPS + 10) for k, v in self._exact.items()}))
         expr = expr.subs(self._exact)
         try:
             together = sp.cancel(sp.together(expr))
