@@ -210,3 +210,25 @@ def test_init_verifies_what_it_loads_once(cli, monkeypatch):
     second = cli("init")
     assert second.exit_code == 0, second.output
     assert "2 of 2 pass (0 computed now, the rest already stored)" in second.stdout
+
+
+def test_repair_pick_out_of_range_and_all_doubtful_are_errors(cli, tmp_path):
+    """`repair --write --pick N` never writes nothing silently: a rank that is not listed, or a pick among
+    suggestions that are all doubtful, is a one-line error (exit 2) and the file is left as it was."""
+    typo = tmp_path / "typo.toml"
+    typo.write_text((DATA.resolve().parent.parent / "catalog" / "examples" / "corvin9-typo.toml").read_text())
+    before = typo.read_text()
+    r = cli("repair", str(typo), "--write", "--pick", "9")
+    assert r.exit_code == 2 and one_error_line(r).startswith("Error: --pick: 9 is not a suggestion rank (1 to ")
+    assert typo.read_text() == before
+    # de Sitter with a vacuum claim and the /3 dropped: the only suggestion (a flat chart) is doubtful
+    ds = tmp_path / "ds.toml"
+    ds.write_text((DATA / "repair-de-sitter-vacuum-claim.toml").read_text())
+    before = ds.read_text()
+    r = cli("repair", str(ds), "--write", "--pick", "1")
+    assert r.exit_code == 2
+    assert one_error_line(r) == "Error: --pick: the 1 suggestion(s) are all doubtful (no repair found); " \
+                                "nothing was written"
+    assert ds.read_text() == before
+    r = cli("repair", str(ds), "--write", "--pick", "2")
+    assert r.exit_code == 2 and "--pick: 2 is not a suggestion rank (1 to 1)" in one_error_line(r)

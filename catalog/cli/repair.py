@@ -172,8 +172,11 @@ def repair(
         for line in _write(app_ctx, target, is_file, report, pick) if do_write else []:
             typer.echo(line)
     if write and report.status != "repairs-found" and pick is not None and report.suggestions:
-        raise InputError("--pick", None, f"all {len(report.suggestions)} suggestions are doubtful (no repair "
-                                         "found): nothing was written")
+        n = len(report.suggestions)
+        if not 1 <= pick <= n:
+            raise InputError("--pick", None, f"{pick} is not a suggestion rank (1 to {n}); nothing was written")
+        raise InputError("--pick", None, f"the {n} suggestion(s) are all doubtful (no repair found); "
+                                         "nothing was written")
     if report.status == "no-repair-found":
         if as_json:
             raise typer.Exit(1)
