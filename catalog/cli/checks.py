@@ -244,6 +244,7 @@ def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: 
         units, keys = units_for(session, list(revs.values()), chosen, force=force, budget=budget,
                                 blocked=app_ctx.settings.disable_plugins)
         units = [u for u in units if only[u["key"]] is None or u["chart"] in only[u["key"]]]
+    app_ctx.engine.dispose()  # no pooled connection is inherited by the forked children
     outputs = _run_units(units, jobs, chosen)
     with app_ctx.transaction() as session:
         for out in outputs:

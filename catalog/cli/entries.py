@@ -32,28 +32,24 @@ def init(ctx: typer.Context,
     cap) and reuses stored results, so a second 'init' verifies nothing already verified. A progress
     bar is shown on a terminal.
     """
-    from gravicat import __version__
+    from gravicat.api.catalogue import Catalogue
     from gravicat.store import revisions as store
     from gravicat.store.db import safe_url
 
     app_ctx = app_context(ctx)
-    docs = [] if empty else list(store.iter_bundled_documents())
-    counts = {"new": 0, "revised": 0, "unchanged": 0}
-    with app_ctx.transaction(create=True) as session:
-        for doc in docs:
-            counts[store.add_document(session, doc, author="gravicat (bundled)", message="bundled catalogue",
-                                      tool_version=__version__).action] += 1
-        total = store.count_entries(session)
+    with Catalogue(app_ctx.settings.database, disable_plugins=app_ctx.settings.disable_plugins) as cat:
+        counts = cat.init(bundled=not empty)
+    total = counts["total"]
     typer.echo(f"catalogue ready at {safe_url(app_ctx.settings.database)}: {total} entries"
                + ("" if empty else f" (bundled: {counts['new']} new, {counts['revised']} updated, "
                                    f"{counts['unchanged']} unchanged)"))
-    if not docs:
+    if empty:
         return
     if no_verify:
         typer.echo("the bundled entries are not verified yet: run 'gravicat verify --all' before exporting "
                    "(or export with --allow-unverified)")
         return
-    _verify_bundled(app_ctx, [d.id for d in docs], jobs)
+    _verify_bundled(app_ctx, [d.id for d in store.iter_bundled_documents()], jobs)
 
 
 def _verify_bundled(app_ctx, slugs: list[str], jobs: int | None) -> None:
