@@ -205,3 +205,22 @@ def test_orbits_and_export_set_option(stored, python_target):
     both = cli("export", "schwarzschild", "--to", "python", "--set", "M=1", "--params", "M=2",
                "--allow-unverified")
     assert both.exit_code == 2 and "--set: M: is 1 but --params gives 2" in both.stderr
+
+
+def test_history_diff_and_revert_take_entry_subjects(stored):
+    cli, copy = stored
+    first, second = _hashes(cli)
+    r = cli("diff", "schwarzschild@1", "--json")  # as 'diff schwarzschild 1': revision 1 against the latest
+    assert r.exit_code == 0, r.stderr
+    out = json.loads(r.stdout)
+    assert (out["from"]["number"], out["to"]["number"]) == (1, 2)
+    r = cli("revert", f"schwarzschild@{first[:10]}")
+    assert r.exit_code == 0, r.stderr
+    assert "revision 1 restored as revision 3" in r.stdout
+    for args, words in [(("history", "schwarzschild:isotropic"), "drop ':isotropic'"),
+                        (("history", "schwarzschild@1"), "give the entry id alone"),
+                        (("history", str(copy)), "a file has no history"),
+                        (("revert", "schwarzschild@1", "2"), "give the revision to restore once"),
+                        (("revert", "schwarzschild"), "give the revision to restore once")]:
+        r = cli(*args)
+        assert r.exit_code == 2 and words in one_error_line(r), (args, r.stderr)

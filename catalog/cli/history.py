@@ -121,6 +121,20 @@ def compare(
 # --------------------------------------------------------------------------- history, diff, revert
 
 
+def entry_id(text: str, command: str) -> tuple[str, str | None]:
+    """(entry id, revision or None) of a command that works on a whole entry's history: the one subject
+    syntax, where a file or a ``:CHART`` makes no sense (one-line errors say so)."""
+    from gravicat.api.subjects import parse_subject
+    from gravicat.errors import InputError
+
+    ref = parse_subject(text)
+    if ref.is_file:
+        raise InputError(text, None, f"{command} works on catalogue entries (a file has no history)")
+    if ref.chart is not None:
+        raise InputError(text, None, f"{command} works on a whole entry; drop ':{ref.chart}'")
+    return ref.entry, ref.revision
+
+
 def _when(iso: str) -> str:
     return iso[:16].replace("T", " ")
 
@@ -135,6 +149,11 @@ def history(
     """Revisions of an entry, newest first: hash, date, author and source, what changed, check status."""
     from gravicat.api import history as hist
 
+    entry, at = entry_id(entry, "history")
+    if at is not None:
+        from gravicat.errors import InputError
+
+        raise InputError(f"{entry}@{at}", None, "history lists every revision; give the entry id alone")
     with app_context(ctx).transaction() as session:
         rows = hist.history_rows(session, entry)
     if as_json:
@@ -168,6 +187,13 @@ def diff(
     """Field-level diff of two revisions: metric components as symbolic differences, and changed check results."""
     from gravicat.api import history as hist
 
+    entry, at = entry_id(entry, "diff")
+    if at is not None:  # ID@REV [REV_B] reads as ID REV [REV_B]
+        if rev_b is not None:
+            from gravicat.errors import InputError
+
+            raise InputError(f"{entry}@{at}", None, "give at most two revisions (ID@REV_A [REV_B] or ID REV_A REV_B)")
+        rev_a, rev_b = at, rev_a
     with app_context(ctx).transaction() as session:
         d = hist.diff(session, entry, rev_a, rev_b, budget=budget)
 
@@ -221,9 +247,9 @@ def _val(v) -> str:
 @reports_errors
 def revert(
     ctx: typer.Context,
-    entry: Annotated[str, typer.Argument(help="Entry id.", show_default=False)],
-    rev: Annotated[str, typer.Argument(metavar="REV", help="Revision to restore (number or hash prefix).",
-                                       show_default=False)],
+    entry: Annotated[str, typer.Argument(metavar="ID[@REV]", help="Entry id.", show_default=False)],
+    rev: Annotated[str | None, typer.Argument(metavar="REV", help="Revision to restore (number or hash prefix; "
+                                                                  "or give ID@REV).", show_default=False)] = None,
     author: Annotated[str | None, typer.Option("--author", metavar="NAME", help="Author of the new revision. "
                                                "Env: GRAVICAT_AUTHOR; default: login name.")] = None,
     message: Annotated[str, typer.Option("--message", "-m", metavar="TEXT", help="Why (added to 'revert to N').")] = "",
@@ -233,6 +259,12 @@ def revert(
     from gravicat.api import history as hist
     from gravicat.config import load_settings
 
+    entry, at = entry_id(entry, "revert")
+    if (at is None) == (rev is None):
+        from gravicat.errors import InputError
+
+        raise InputError("REV", None, "give the revision to restore once: ID REV or ID@REV")
+    rev = rev or at
     who = load_settings(author=author).author
     with app_context(ctx).transaction() as session:
         old, stored = hist.revert(session, entry, rev, author=who, message=message, tool_version=__version__)
