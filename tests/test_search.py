@@ -109,7 +109,8 @@ def test_filters_combine(catalogue_any):
         "kerr", "kerr-newman", "reissner-nordstrom", "schwarzschild"]
     assert ids(engine, tags=("black-hole", "charged")) == ["kerr-newman", "reissner-nordstrom"]
     assert ids(engine, params=("a", "Q")) == ["kerr-newman"]
-    assert ids(engine, coordinates=("rho",)) == ["minkowski", "schwarzschild"]  # cylindrical and isotropic charts
+    # cylindrical (Minkowski) and isotropic (Reissner-Nordstrom, Schwarzschild) charts
+    assert ids(engine, coordinates=("rho",)) == ["minkowski", "reissner-nordstrom", "schwarzschild"]
     assert ids(engine, coordinates=("x_1",)) == ["halcyon-1"]  # '_' is not a wildcard
     assert ids(engine, reference="10.1103/PhysRevLett.11.237") == ["kerr"]  # Kerr (1963) by DOI
     assert ids(engine, reference="LINDQUIST") == ["kerr"]  # case-insensitive
