@@ -29,7 +29,7 @@ NEW_ENTRIES = (
     "kantowski-sachs", "radiation-flrw", "lambda-cdm-flat", "bianchi-i-stiff", "taub-bianchi-ix", "hayward",
     "bardeen", "photon-rocket", "vaidya-radiating", "vaidya-de-sitter", "robinson-trautman-type-iii", "tolman-iv",
     "ltb-bang-time", "flrw-closed-dust", "flrw-open-dust", "flrw-closed-radiation", "flrw-open-radiation",
-    "heckmann-schucking", "radiation-lambda-flat", "kasner-de-sitter",
+    "heckmann-schucking", "radiation-lambda-flat", "kasner-de-sitter", "szekeres-quasi-spherical",
 )
 NEW_CHARTS = (
     ("schwarzschild", "outgoing-eddington-finkelstein"), ("schwarzschild", "lemaitre"),
@@ -37,6 +37,7 @@ NEW_CHARTS = (
     ("einstein-de-sitter", "comoving-spherical"), ("radiation-flrw", "conformal"),
     ("lambda-cdm-flat", "comoving-spherical"), ("hayward", "ingoing-eddington-finkelstein"),
     ("bardeen", "ingoing-eddington-finkelstein"), ("ltb-bang-time", "stereographic"),
+    ("ltb-bang-time", "stereographic-w"),
 )
 
 
@@ -355,3 +356,22 @@ def test_photon_rocket_density_and_vaidya_limit():
     m, dm = 1 + uu**2 / 10, uu / 5
     expected = (2 * (3 * accel * m * sp.cos(th) - dm) / r**2).subs(point)
     assert abs(sp.N(ric_uu.subs(point) - expected, 30)) < 1e-20  # R = 0 here, so G_uu = R_uu
+
+
+def test_szekeres_density_follows_the_quasi_spherical_formula():
+    # 4 pi rho = (M' - 3 M E'/E)/(R**2 (R' - R E'/E)) (P. Szekeres, Commun. Math. Phys. 41 (1975) 55, in the
+    # form of A. Krasinski, Inhomogeneous Cosmological Models (1997), recalled from memory), with M = 2 r**3/9,
+    # R = r w**2, w = (t - b r**2)**(1/3), E = ((p - c r)**2 + q**2 + 1)/2. The chart's time is w, so the
+    # density is 8 pi rho = G^a_b u_a u^b with u = (1/(3 w**2)) d/dw, and G^a_b u^b = -8 pi rho u^a.
+    w, r, p, q = mpmath.mpf(3) / 2, mpmath.mpf(1) / 2, mpmath.mpf(1) / 3, mpmath.mpf(-1) / 4
+    b, c = mpmath.mpf(1) / 10, mpmath.mpf(1) / 5
+    out = curvature("szekeres-quasi-spherical", w="3/2", r="1/2", p="1/3", q="-1/4")
+    u_up = [1 / (3 * w**2), 0, 0, 0]
+    u_low = [sum(out["g"][a, k] * u_up[k] for k in range(4)) for a in range(4)]
+    rho8 = sum(u_low[a] * out["G"][a, k] * u_up[k] for a in range(4) for k in range(4))  # G^a_b u_a u^b
+    E = ((p - c * r) ** 2 + q**2 + 1) / 2
+    Er = -c * (p - c * r)
+    R, Rr = r * w**2, (w**3 - 4 * b * r**2 / 3) / w
+    M, Mr = 2 * r**3 / 9, 2 * r**2 / 3
+    assert close(rho8, 2 * (Mr - 3 * M * Er / E) / (R**2 * (Rr - R * Er / E)))
+    assert all(small(sum(out["G"][a, k] * u_up[k] for k in range(4)) + rho8 * u_up[a]) for a in range(4))
