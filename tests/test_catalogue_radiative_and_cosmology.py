@@ -290,6 +290,10 @@ def test_tolman_iv_central_values_and_surface():
     out = curvature("tolman-iv", r="1", theta="1")  # r_b = 1 for the defaults a = 1, R = 2
     assert close(rb, 1)
     assert small(out["G"][1, 1])
+    # the defaults are matched to Schwarzschild with M = 1/4 at r_b = 1: g_tt = -(1 - 2M/r_b), g_rr = 1/(1 - 2M/r_b)
+    # (continuity of the first fundamental form and p(r_b) = 0, the junction conditions for a static star)
+    assert close(out["g"][0, 0], -(1 - mpmath.mpf(2) / 4))
+    assert close(out["g"][1, 1], 1 / (1 - mpmath.mpf(2) / 4))
 
 
 def test_ltb_density_follows_bondis_formula():
