@@ -22,7 +22,7 @@ ALLOWED = {
     "physics": {"export", "engine", "format"},
     "repair": {"physics", "export", "engine", "format"},
     "store": {"format"},
-    "api": {"repair", "physics", "export", "engine", "format", "store"},
+    "api": {"repair", "physics", "export", "engine", "format", "store", "config"},
     "cli": {"api", "repair", "physics", "export", "engine", "format", "store", "config"},
 }
 CORE = {"errors", "checks", "hookspecs", "registry", ""}
