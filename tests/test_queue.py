@@ -460,7 +460,7 @@ def test_verify_enqueue_refuses_bad_usage(empty_catalogue):
     assert cli("add", str(DATA / "rindler-demo.toml")).exit_code == 0
     unknown = cli("verify", "no-such-entry", "--enqueue")
     assert unknown.exit_code == 2
-    assert unknown.stderr.strip() == "Error: no entry 'no-such-entry' in the catalogue (see 'gravicat list')"
+    assert unknown.stderr.strip() == "Error: no-such-entry: no entry 'no-such-entry' in the catalogue (see 'gravicat list')"
     jobs = cli("verify", "--all", "--enqueue", "--jobs", "2")
     assert jobs.exit_code == 2
     assert jobs.stderr.strip() == "Error: --jobs: does not apply with --enqueue; give it to 'gravicat worker'"
