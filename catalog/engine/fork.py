@@ -13,8 +13,9 @@ stopped later); its return value is the task's ``value``. The parent gets a :cla
   exceptions whose ``__init__`` takes other arguments than their message, such as
   :class:`gravicat.errors.InputError`), ``error`` its text and ``traceback`` the child's traceback;
 * ``limit`` - ``"cpu"`` (the child reached its CPU-time cap: ``RLIMIT_CPU``, a signal from the
-  kernel) or ``"wall"`` (the parent's watchdog: the child took longer than ``wall_seconds``);
-  ``None`` otherwise. ``items`` then holds what the child emitted before it was stopped;
+  kernel), ``"wall"`` (the parent's watchdog: the child took longer than ``wall_seconds``) or
+  ``"memory"`` (the child reached its memory cap: a ``MemoryError``, or an abort of a C library
+  that could not allocate); ``None`` otherwise. ``items`` then holds what the child emitted before it was stopped;
 * ``died`` - the child ended without a result for another reason (``exitcode`` says how).
 
 Limits: ``cpu_seconds`` is CPU time of the child itself (so a loaded machine does not turn work
@@ -25,6 +26,13 @@ backstop in elapsed time (a child that sleeps, or waits on a grandchild). Each c
 own process group, and a stopped child is killed with its whole group, so grandchildren (a
 verifier's own time-limited proofs) do not outlive it. Children are not daemonic, so the task
 may fork children of its own.
+
+Memory: every child gets an address-space cap (``RLIMIT_AS``) of what it inherits at the fork plus
+:data:`MEMORY_CAP_BYTES` (default :data:`DEFAULT_MEMORY_CAP_BYTES`, 3 GiB; ``memory-cap`` in the
+settings, set through :func:`set_memory_cap`), so a chart that would need more memory ends as a
+``"memory"`` limit instead of a machine that swaps or an out-of-memory kill. Children die with
+their parent: each asks the kernel for ``SIGKILL`` when its parent ends (Linux ``PR_SET_PDEATHSIG``),
+so a ``kill -9`` of the command leaves no worker behind.
 
 Where ``fork`` is not available (or ``in_process=True``), tasks run one after the other in this
 process with the same :class:`Outcome` (no limits can be enforced there; ``limit`` stays None).
@@ -45,6 +53,7 @@ import math
 import os
 import pickle
 import signal
+import sys
 import time
 import traceback
 from collections.abc import Callable, Sequence
@@ -52,6 +61,15 @@ from dataclasses import dataclass, field
 from typing import Any
 
 Task = Callable[[Callable[[Any], None]], Any]
+
+DEFAULT_MEMORY_CAP_BYTES = 3 * 1024**3
+MEMORY_CAP_BYTES: int | None = DEFAULT_MEMORY_CAP_BYTES  # None: no cap
+
+
+def set_memory_cap(cap_bytes: int | None) -> None:
+    """Set the address space each child may add to what it inherits (None or 0: no cap)."""
+    global MEMORY_CAP_BYTES
+    MEMORY_CAP_BYTES = int(cap_bytes) if cap_bytes else None
 
 
 @dataclass
@@ -64,7 +82,7 @@ class Outcome:
     exception: BaseException | None = None
     error: str | None = None
     traceback: str = ""
-    limit: str | None = None  # "cpu" | "wall" | None
+    limit: str | None = None  # "cpu" | "wall" | "memory" | None
     died: bool = False
     exitcode: int | None = None
     seconds: float = 0.0  # elapsed (wall) seconds seen by the parent
@@ -148,7 +166,8 @@ def run_many(tasks: Sequence[Task], *, jobs: int = 1, cpu_seconds: Sequence[floa
             while pending and len(running) < jobs:
                 i = pending.pop(0)
                 recv, send = ctx.Pipe(duplex=False)
-                proc = ctx.Process(target=_child, args=(tasks[i], send, cpus[i]), daemon=False)
+                proc = ctx.Process(target=_child, args=(tasks[i], send, cpus[i], MEMORY_CAP_BYTES, os.getpid()),
+                                   daemon=False)
                 proc.start()
                 send.close()
                 try:
@@ -241,17 +260,23 @@ def _run_here(fn: Task, on_item) -> Outcome:
 # --------------------------------------------------------------------------- child side
 
 
-def _child(fn: Task, send, cpu_seconds: float | None) -> None:
-    """Body of a forked child: own process group, CPU cap, run, report; never returns normally."""
+def _child(fn: Task, send, cpu_seconds: float | None, memory_bytes: int | None = None,
+           parent: int | None = None) -> None:
+    """Body of a forked child: own process group, dies with its parent, CPU and memory caps, run,
+    report; never returns normally."""
     try:
         os.setpgid(0, 0)
     except OSError:  # pragma: no cover - already a group leader
         pass
+    _die_with_parent(parent)
     _limit_cpu(cpu_seconds)
+    _limit_memory(memory_bytes)
     code = 0
     try:
         value = fn(lambda item: send.send(("item", item)))
         _send_safely(send, ("value", value))
+    except MemoryError:
+        _send_safely(send, ("memory",))
     except Exception as exc:  # noqa: BLE001 - reported to the parent, which decides
         _send_safely(send, ("raise", _portable(exc), _describe(exc), traceback.format_exc()))
     except BaseException:  # SystemExit, KeyboardInterrupt: end without a result
@@ -291,6 +316,52 @@ def _limit_cpu(seconds: float | None) -> None:
             resource.setrlimit(resource.RLIMIT_CPU, (cpu, hard))
     except (ValueError, OSError):  # pragma: no cover - no resource limits here
         pass
+
+
+def _die_with_parent(parent: int | None) -> None:
+    """Ask the kernel to kill this child when its parent ends (Linux ``PR_SET_PDEATHSIG``); if the
+    parent already ended before the request took effect, end now."""
+    if not sys.platform.startswith("linux"):  # pragma: no cover - elsewhere the group kill still applies
+        return
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(_PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0)
+    except (OSError, AttributeError):  # pragma: no cover - no prctl here
+        return
+    if parent is not None and os.getppid() != parent:  # the parent ended before the request
+        os._exit(1)
+
+
+_PR_SET_PDEATHSIG = 1
+
+
+def _limit_memory(cap: int | None) -> None:
+    """Cap the address space at what the child inherited plus ``cap`` bytes (``RLIMIT_AS``)."""
+    if not cap:
+        return
+    try:
+        import resource
+    except ImportError:  # pragma: no cover - not POSIX
+        return
+    try:
+        limit = _address_space() + int(cap)
+        _soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+        if hard != resource.RLIM_INFINITY:
+            limit = min(limit, hard)
+        resource.setrlimit(resource.RLIMIT_AS, (limit, hard))
+    except (ValueError, OSError):  # pragma: no cover - no resource limits here
+        pass
+
+
+def _address_space() -> int:
+    """This process's virtual memory size in bytes (0 where /proc is not available)."""
+    try:
+        with open("/proc/self/statm") as f:
+            return int(f.read().split()[0]) * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, IndexError):  # pragma: no cover - not Linux
+        return 0
 
 
 def _send_safely(send, message) -> None:
@@ -344,6 +415,8 @@ def _receive(conn, out: Outcome, on_item, i: int) -> bool:
             on_item(i, message[1])
     elif kind == "value":
         out.value, out.finished = message[1], True
+    elif kind == "memory":
+        out.limit = "memory"
     elif kind == "raise":
         out.exception = _rebuild(message[1])
         out.error, out.traceback = message[2], message[3]
@@ -352,6 +425,8 @@ def _receive(conn, out: Outcome, on_item, i: int) -> bool:
 
 def _finish(conn, proc, out: Outcome, start: float, *, limit: str | None) -> None:
     complete = out.finished or out.error is not None
+    if out.limit == "memory":  # the child said so before it ended
+        limit = "memory"
     if limit is not None or not complete:
         # stopped, or ended without a result (its CPU cap): end its process group too. Before
         # join(), so the pid is not reaped yet and cannot belong to anything else.
@@ -372,6 +447,8 @@ def _finish(conn, proc, out: Outcome, start: float, *, limit: str | None) -> Non
         out.limit = limit
     elif proc.exitcode == -signal.SIGXCPU:
         out.limit = "cpu"
+    elif MEMORY_CAP_BYTES and proc.exitcode == -signal.SIGABRT:
+        out.limit = "memory"  # a C library (GMP, flint) aborts when an allocation under the cap fails
     else:
         out.died = True
 

@@ -140,34 +140,34 @@ def check_document(doc: MetricDocument, verifiers: list[Any], *, charts: Iterabl
                    jobs: int | None = None) -> list[ChartReport]:
     """Check the charts of ``doc`` (default: all), one :class:`ChartReport` per chart in order.
 
-    ``jobs=None``: one chart after the other in this process. ``jobs=N``: when there is more
-    than one chart, each chart runs in its own forked child, at most N at a time, under the hard
-    CPU-time cap :func:`chart_cap`; the reports are the same as in-process ones, except that the
-    checks of a chart that reached its cap before reporting are ``inconclusive`` (the detail
-    says so). A chart that cannot be built raises the same error as in-process (the first such
-    chart in chart order). Without ``fork`` the charts run in-process.
+    ``jobs=None``: one chart after the other in this process (no caps: for callers that are
+    already in a capped child). ``jobs=N``: each chart (also a single one) is built, prepared and
+    checked in its own forked child, at most N at a time, under the hard CPU-time cap
+    :func:`chart_cap` and the memory cap of :mod:`gravicat.engine.fork`; the reports are the same
+    as in-process ones, except that the checks of a chart that reached a cap before reporting are
+    ``inconclusive`` (the detail says which cap). A chart that cannot be built raises the same
+    error as in-process (the first such chart in chart order). Without ``fork`` the charts run in-process.
     """
     names = list(charts) if charts else doc.chart_names
-    if jobs is None or len(names) < 2:
+    if jobs is None:
         return [check_chart(doc, c, verifiers, resolve=resolve, budget=budget) for c in names]
     import gravicat.engine.geometry  # noqa: F401 - sympy and flint, imported once here for every child
     from gravicat.engine import fork as _fork
-    from gravicat.format.metricfile import build_chart
 
     verifiers = list(verifiers)
-    # Built here, one after the other (cheap): a chart that cannot be built raises here exactly as
-    # in-process, and every child starts from the same warm sympy state instead of paying it again.
-    specs, built = [], []
-    for chart in names:
-        start = time.perf_counter()
-        specs.append(build_chart(doc, chart, resolve))
-        built.append(time.perf_counter() - start)
     caps = [chart_cap(doc, c, len(verifiers), budget) for c in names]
 
+    # Everything that touches the file's content - building the chart (its definitions substituted),
+    # preparing it (the inverse metric, the curvature) and the verifiers - runs in the child, under
+    # the chart's CPU-time cap and the memory cap of gravicat.engine.fork; a chart that cannot be
+    # built raises its error in the child, re-raised here exactly as in-process.
     def task(k: int):
         def run(emit):
+            from gravicat.format.metricfile import build_chart
+
             start = time.perf_counter()
-            _run_spec(specs[k], verifiers, budget, 0, lambda item: emit(_portable(item)))
+            spec = build_chart(doc, names[k], resolve)
+            _run_spec(spec, verifiers, budget, 0, lambda item: emit(_portable(item)))
             return time.perf_counter() - start
 
         return run
@@ -177,7 +177,7 @@ def check_document(doc: MetricDocument, verifiers: list[Any], *, charts: Iterabl
     started = _fork.run_many([task(k) for k in order], jobs=jobs, cpu_seconds=[caps[k] for k in order])
     outcomes = [started[order.index(k)] for k in range(len(names))]
     reports = []
-    for k, (chart, cap, out) in enumerate(zip(names, caps, outcomes, strict=True)):
+    for chart, cap, out in zip(names, caps, outcomes, strict=True):
         if out.error is not None:
             out.reraise()
         report = ChartReport(chart=chart)
@@ -187,7 +187,7 @@ def check_document(doc: MetricDocument, verifiers: list[Any], *, charts: Iterabl
             collect(item)
             if item[0] == "results":
                 reported.add(item[1])
-        report.seconds = built[k] + (out.value if out.finished else out.seconds)
+        report.seconds = out.value if out.finished else out.seconds
         if not out.finished:
             report.results.extend(_unreported(verifiers, reported, cap, out))
         reports.append(report)
@@ -213,7 +213,11 @@ def _portable(item: tuple) -> tuple:
 
 def _unreported(verifiers: list[Any], reported: set[int], cap: float, out) -> list[CheckResult]:
     """Results for the verifiers a chart's child did not report (it reached its cap, or died)."""
-    if out.limit is not None:
+    if out.limit == "memory":
+        status = Status.INCONCLUSIVE
+        detail = (f"not finished: memory cap reached (the chart's process may add {_memory_text()} of "
+                  "address space; setting memory-cap)")
+    elif out.limit is not None:
         status = Status.INCONCLUSIVE
         what = "CPU-time" if out.limit == "cpu" else "elapsed-time"
         detail = (f"not finished: the chart's time cap was reached ({what} cap of {cap:g} s for this chart, "
@@ -224,6 +228,14 @@ def _unreported(verifiers: list[Any], reported: set[int], cap: float, out) -> li
     return [CheckResult(check=v.name, status=status, method=Method.NONE, detail=detail,
                         verifier=v.name, version=v.version)
             for k, v in enumerate(verifiers) if k not in reported]
+
+
+def _memory_text() -> str:
+    from gravicat.engine.fork import MEMORY_CAP_BYTES
+
+    if not MEMORY_CAP_BYTES:
+        return "unlimited"
+    return f"{MEMORY_CAP_BYTES / 1024**2:g} MiB"
 
 
 class BundledDocuments(Mapping[str, MetricDocument]):
