@@ -16,6 +16,7 @@ SETTINGS = {
     "database": ("GRAVICAT_DB", "database"),
     "disable_plugins": ("GRAVICAT_DISABLE_PLUGINS", "disable-plugins"),
     "author": ("GRAVICAT_AUTHOR", "author"),
+    "cluster": ("GRAVICAT_CLUSTER", "cluster"),
 }
 
 
@@ -24,6 +25,7 @@ class Settings:
     database: str
     disable_plugins: tuple[str, ...] = field(default=())
     author: str = ""
+    cluster: str = ""  # a Dask scheduler address or local:N for 'verify'; "" = local forked children
 
 
 def config_path() -> Path:
@@ -60,7 +62,7 @@ def _login_name() -> str:
 
 
 def load_settings(*, database: str | None = None, disable_plugins: list[str] | None = None,
-                  author: str | None = None) -> Settings:
+                  author: str | None = None, cluster: str | None = None) -> Settings:
     """Resolve every setting; arguments are the command-line options (None = not given)."""
     file = _file_values()
 
@@ -83,4 +85,7 @@ def load_settings(*, database: str | None = None, disable_plugins: list[str] | N
     if isinstance(blocked, str):
         blocked = [b.strip() for b in blocked.split(",") if b.strip()]
     who = pick("author", author) or _login_name()
-    return Settings(database=db, disable_plugins=tuple(blocked), author=str(who))
+    where = pick("cluster", cluster) or ""
+    if not isinstance(where, str):
+        raise InputError(str(config_path()), "cluster", "must be a string (tcp://host:8786 or local:N)")
+    return Settings(database=db, disable_plugins=tuple(blocked), author=str(who), cluster=where)
