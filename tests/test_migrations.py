@@ -9,6 +9,7 @@ from alembic import command
 from alembic.config import Config
 from alembic.script import ScriptDirectory
 from conftest import DATA
+from pg import any_url  # noqa: F401  (fixture: SQLite and PostgreSQL)
 from sqlalchemy import inspect, select
 from sqlalchemy.orm import Session
 
@@ -82,3 +83,51 @@ def test_sqlite_runs_with_foreign_keys_and_wal(db_url):
     with engine.connect() as conn:
         assert conn.exec_driver_sql("PRAGMA foreign_keys").scalar() == 1
         assert conn.exec_driver_sql("PRAGMA journal_mode").scalar() == "wal"
+
+
+def _rows(engine, tables) -> dict[str, list[tuple]]:
+    """Every row of every table in ``tables``, ordered by id, as plain tuples."""
+    from sqlalchemy import MetaData
+
+    meta = MetaData()
+    meta.reflect(engine, only=list(tables))
+    with engine.connect() as conn:
+        return {name: [tuple(r) for r in conn.execute(select(meta.tables[name]).order_by(meta.tables[name].c.id))]
+                for name in tables}
+
+
+def test_upgrade_dropping_the_job_table_keeps_every_other_table(any_url):  # noqa: F811
+    """0004 drops the home-made queue's job table (verification across machines runs on Dask);
+    every row of every other table is the same after the upgrade, and the stored results still work."""
+    from sqlalchemy import text
+
+    engine = db.make_engine(any_url)
+    try:
+        db.upgrade(engine, "0003")
+        doc = load_file(DATA / "rindler-demo.toml")
+        with Session(engine) as session, session.begin():
+            rev = store.add_document(session, doc, author="Ines Varga-Lund", message="before 0004")
+            rid = session.scalars(select(Revision.id)).one()
+            session.add(CheckRecord(revision_id=rid, chart="rindler", check="structure", verifier="structure",
+                                    verifier_version="1", status="pass", method="symbolic", detail="kept",
+                                    seconds=0.25))
+        with engine.begin() as conn:  # a job left by the old queue (the table as 0003 made it)
+            conn.execute(text("INSERT INTO job (revision_id, chart, verifier, verifier_version, state, priority, "
+                              "budget, attempts, max_attempts, created_at) VALUES (:r, 'rindler', 'structure', '1', "
+                              "'pending', 0, 20.0, 0, 3, CURRENT_TIMESTAMP)"), {"r": rid})
+        others = sorted(set(inspect(engine).get_table_names()) - {"job", "alembic_version"})
+        assert {"entry", "revision", "provenance", "chart", "parameter", "tag", "reference",
+                "check_result"} <= set(others)
+        before = _rows(engine, others)
+        assert all(before[name] for name in ("entry", "revision", "chart", "parameter", "tag", "check_result"))
+
+        db.ensure_schema(engine, may_upgrade=True)
+        assert db.current_revision(engine) == db.SCHEMA_HEAD
+        assert "job" not in inspect(engine).get_table_names()
+        assert _rows(engine, others) == before
+        with Session(engine) as session:
+            again = store.revision(session, "halcyon-rindler")
+            assert again.hash == rev.hash
+            assert [(r.check, r.detail) for r in store.results_for(session, again)] == [("structure", "kept")]
+    finally:
+        engine.dispose()

@@ -23,18 +23,17 @@ from alembic import command
 from alembic.config import Config
 from conftest import DATA
 from pg import any_url, pg_url, wait_until_blocked  # noqa: F401  (fixtures)
-from queue_helpers import Tally, document
+from postgres_helpers import document
 from sqlalchemy import inspect, select
 from sqlalchemy.orm import Session
 
-from gravicat.api import queue
 from gravicat.errors import SchemaOutdated
 from gravicat.format.metricfile import load_file
 from gravicat.store import db
 from gravicat.store import revisions as store
-from gravicat.store.models import CheckRecord, Entry, Job, Revision
+from gravicat.store.models import CheckRecord, Entry, Revision
 
-HELPER = Path(__file__).parent / "queue_helpers.py"
+HELPER = Path(__file__).parent / "postgres_helpers.py"
 FIXTURE = DATA / "rindler-demo.toml"
 
 
@@ -132,12 +131,13 @@ def test_postgres_upgrade_from_the_first_revision_keeps_data(pg_url, cli):  # no
         # a shared server is never upgraded behind the group's back: the command says what to run
         refused = cli("list", db=pg_url)
         assert refused.exit_code == 2
-        assert "schema 0002, this version needs 0003; run 'gravicat --db" in _one_error_line(refused)
+        assert "schema 0002, this version needs 0004; run 'gravicat --db" in _one_error_line(refused)
         with pytest.raises(SchemaOutdated):
             db.ensure_schema(engine, may_upgrade=False)
         upgraded = cli("init", "--empty", db=pg_url)
         assert upgraded.exit_code == 0, upgraded.output
-        assert db.current_revision(engine) == db.SCHEMA_HEAD == "0003"
+        assert db.current_revision(engine) == db.SCHEMA_HEAD == "0004"
+        assert "job" not in inspect(engine).get_table_names()  # 0003 made it, 0004 dropped it (verify --cluster)
 
         with Session(engine) as session, session.begin():
             rev = store.revision(session, "halcyon-rindler")
@@ -147,9 +147,6 @@ def test_postgres_upgrade_from_the_first_revision_keeps_data(pg_url, cli):  # no
             assert sorted(t.name for t in rev.tags) == ["flat", "test-fixture"]
             assert [(r.check, r.detail, r.seconds) for r in rev.results] == [("structure", "at 0002", 0.5)]
             assert store.revision(session, "halcyon-flat").hash == second.hash
-            # the table 0003 added works with the revisions stored before it existed
-            made = queue.enqueue(session, store.list_entries(session), [Tally()])
-            assert made.added == 2 and made.up_to_date == 0
         with engine.begin() as conn:
             command.check(_alembic(conn))  # the models and the migrations agree on PostgreSQL too
     finally:
@@ -161,10 +158,13 @@ def test_postgres_downgrade_and_upgrade_again(pg_url):  # noqa: F811
     try:
         db.ensure_schema(engine, may_upgrade=True, may_create=True)
         with engine.begin() as conn:
+            command.downgrade(_alembic(conn), "0003")
+        assert "job" in inspect(engine).get_table_names()  # 0004's downgrade gives the (empty) table back
+        with engine.begin() as conn:
             command.downgrade(_alembic(conn), "0002")
         assert "job" not in inspect(engine).get_table_names()
         db.upgrade(engine)
-        assert "job" in inspect(engine).get_table_names() and db.current_revision(engine) == "0003"
+        assert "job" not in inspect(engine).get_table_names() and db.current_revision(engine) == db.SCHEMA_HEAD
     finally:
         engine.dispose()
 
@@ -282,5 +282,3 @@ def test_two_processes_adding_100_entries_each(any_url, engine, tmp_path):  # no
         _assert_linear(chain)
         assert len(chain) == len(by_slug[slug]) == (14 if k == 0 else 12)  # rounds 0, 4, ... 96 of each process
         assert sorted((n, h) for _, n, h in by_slug[slug]) == [(n, h) for _, _, n, h in chain]
-    with Session(engine) as session:
-        assert session.scalar(select(Job.id)) is None

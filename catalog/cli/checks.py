@@ -173,15 +173,18 @@ def verify(
     all_entries: Annotated[bool, typer.Option("--all", help="Every entry of the catalogue.")] = False,
     force: Annotated[bool, typer.Option("--force", help="Recompute even when results are stored.")] = False,
     jobs: Annotated[int, typer.Option("--jobs", "-j", min=1, help="Worker processes.")] = 1,
-    enqueue: Annotated[bool, typer.Option("--enqueue", help="Only record the work as jobs for 'gravicat worker' "
-                                                            "(on this or other machines).")] = False,
+    cluster: Annotated[str | None, typer.Option(
+        "--cluster", metavar="ADDRESS", show_default=False,
+        help="Run on a Dask cluster: a scheduler (tcp://host:8786) or local:N (N local worker processes). "
+             "Env: GRAVICAT_CLUSTER.")] = None,
     budget: BudgetOpt = 20.0,
     as_json: JsonOpt = False,
 ) -> None:
     """Verify catalogue entries and store the results against their revision.
 
     Results already stored for the same revision hash and verifier version are reused unless --force.
-    With --enqueue, one job per (revision, chart, verifier version) needing work is recorded instead.
+    With --cluster, each (revision, chart) is one unit of work for a Dask worker, under the same
+    CPU-time cap as locally, and is stored as soon as it completes (an interrupted run resumes).
     """
     from gravicat.engine.runner import select_verifiers
     from gravicat.registry import verifiers
@@ -192,46 +195,45 @@ def verify(
     if not entries and not all_entries:
         raise InputError("ID", None, "name entries to verify, or give --all")
     chosen = select_verifiers(verifiers(app_ctx.plugins), None)
-    if enqueue:
-        from gravicat.api import queue
+    cluster = cluster or app_ctx.settings.cluster or None
+    if cluster is not None:
+        from gravicat.api.cluster import parse_address
 
+        parse_address(cluster)  # a malformed address is refused before anything is read
         if jobs != 1:
-            raise InputError("--jobs", None, "does not apply with --enqueue; give it to 'gravicat worker'")
-        with app_ctx.transaction() as session:
-            if entries:
-                picked = [_entry_subject(session, e) for e in entries]
-                if any(c is not None for _, c in picked):
-                    raise InputError("--enqueue", None, "queues every chart of an entry; drop the :CHART part")
-                made = queue.enqueue(session, [r for r, _ in picked], chosen, force=force, budget=budget)
-            else:
-                made = queue.enqueue_entries(session, None, chosen, force=force, budget=budget)
-        if as_json:
-            emit_json(made.to_json())
-        else:
-            typer.echo(made.describe())
-        return
+            raise InputError("--jobs", None, "does not apply with --cluster (the cluster's workers run the units)")
+    run = {}
     summary = verify_revisions(app_ctx, lambda session: ([_entry_subject(session, e) for e in entries] if entries
                                                          else [(r, None) for r in store.list_entries(session)]),
-                               chosen, force=force, budget=budget, jobs=jobs)
+                               chosen, force=force, budget=budget, jobs=jobs, cluster=cluster, run=run)
     failed = [s["metric"] for s in summary if s["status"] in ("fail", "error")]
     if as_json:
-        emit_json({"entries": summary, "status": "fail" if failed else "pass"})
+        emit_json({"entries": summary, "status": "fail" if failed or run.get("failures") else "pass"}
+                  | ({"cluster": run} if cluster is not None else {}))
     else:
         emit_table([[s["metric"], s["revision"][:12], s["status"],
                      "reused" if not s["computed"] else f"{s['computed']} chart(s) computed"] for s in summary],
                    ["entry", "revision", "status", "results"])
-    if failed:
+    if run.get("failures") and not as_json:
+        for line in run["failures"]:
+            typer.echo(f"failed: {line}", err=True)
+    if failed or run.get("failures"):
         if as_json:
             raise typer.Exit(1)
+        if not failed:
+            raise CheckFailed(f"{len(run['failures'])} unit(s) of the cluster run failed (see above)")
         raise CheckFailed(f"{len(failed)} entr{'y' if len(failed) == 1 else 'ies'} failed: {', '.join(failed)}")
 
 
-def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: float, jobs: int) -> list[dict]:
+def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: float, jobs: int,
+                     cluster: str | None = None, run: dict | None = None) -> list[dict]:
     """Verify what ``pick(session)`` returns ((stored revision, chart or None) pairs) and store the
     results, as ``verify`` does; one summary row per revision (the ``verify --json`` shape).
 
     The units are read in one transaction, run outside any (forked children under CPU-time caps),
-    and their results stored in a second one."""
+    and their results stored in a second one. With ``cluster`` (a Dask address), the units run on
+    that cluster and each is stored in its own transaction as it completes; ``run`` (a dict) then
+    receives the cluster summary (:class:`gravicat.api.cluster.ClusterRun` as JSON)."""
     from gravicat.api.verifying import units_for
     from gravicat.engine.runner import result_from_json
     from gravicat.store import revisions as store
@@ -245,7 +247,13 @@ def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: 
                                 blocked=app_ctx.settings.disable_plugins)
         units = [u for u in units if only[u["key"]] is None or u["chart"] in only[u["key"]]]
     app_ctx.engine.dispose()  # no pooled connection is inherited by the forked children
-    outputs = _run_units(units, jobs, chosen)
+    if cluster is not None:
+        outputs = []
+        result = _run_on_cluster(app_ctx, cluster, units, chosen, force=force)
+        if run is not None:
+            run.update(result.to_json())
+    else:
+        outputs = _run_units(units, jobs, chosen)
     with app_ctx.transaction() as session:
         for out in outputs:
             rev = session.get(store.Revision, out["key"])
@@ -290,6 +298,27 @@ def _run_units(units: list[dict], jobs: int, chosen) -> list[dict]:
             outputs.extend(run_units(batch, jobs, chosen))
             bar.update(len(batch))
     return outputs
+
+
+def _run_on_cluster(app_ctx: AppContext, address: str, units: list[dict], chosen, *, force: bool):
+    """Run the units on a Dask cluster (:mod:`gravicat.api.cluster`), storing each unit in its own
+    transaction as it completes; a progress bar (units done / total, failures) on a terminal."""
+    from gravicat.api import cluster
+
+    def store(out: dict) -> int:
+        with app_ctx.transaction() as session:
+            return cluster.store_output(session, out, force=force)
+
+    versions = {v.name: v.version for v in chosen}
+    if not units or not sys.stderr.isatty():
+        return cluster.verify_units(address, units, versions, store=store)
+    with typer.progressbar(length=len(units), label="verifying on the cluster", file=sys.stderr,
+                           item_show_func=lambda run: run and f"{run.done}/{run.units}, "
+                                                              f"{len(run.failures)} failure(s)") as bar:
+        def progress(run) -> None:
+            bar.update(1, run)
+
+        return cluster.verify_units(address, units, versions, store=store, progress=progress)
 
 
 @app.command("invariants")

@@ -11,7 +11,6 @@ update.
 from __future__ import annotations
 
 import datetime as dt
-import enum
 from typing import Annotated, Any
 
 from sqlalchemy import (
@@ -188,44 +187,3 @@ class CheckRecord(Base):
     counterexample: Mapped[dict[str, Any] | None]
     seconds: Mapped[float]
     created_at: Mapped[timestamp]
-
-
-class JobState(enum.StrEnum):
-    """Where a verification job is: see :mod:`gravicat.api.queue` for the life of a job."""
-
-    PENDING = "pending"  # waiting for a worker (new, retried, or released)
-    RUNNING = "running"  # claimed by a worker holding a lease until ``lease_until``
-    DONE = "done"  # results stored
-    FAILED = "failed"  # gave up after ``max_attempts``; an ``error`` result and ``error`` say why
-
-
-class Job(Base):
-    """One unit of verification work: one verifier version on one chart of one revision.
-
-    Workers claim jobs with ``SELECT ... FOR UPDATE SKIP LOCKED`` (SQLite: serialised
-    write transactions); ``token`` identifies the claim, so only the holder of the current
-    claim can store results, and an expired ``lease_until`` makes a running job claimable.
-    """
-
-    __tablename__ = "job"
-    __table_args__ = (UniqueConstraint("revision_id", "chart", "verifier", "verifier_version"),
-                      Index(None, "state", "attempts", "priority"))
-    id: Mapped[pk]
-    revision_id: Mapped[int] = mapped_column(ForeignKey("revision.id", ondelete="CASCADE"))
-    chart: Mapped[name80]
-    verifier: Mapped[name80]
-    verifier_version: Mapped[str] = mapped_column(String(40))
-    state: Mapped[JobState] = mapped_column(Enum(JobState, native_enum=False, length=16,
-                                                 values_callable=lambda e: [m.value for m in e]),
-                                            default=JobState.PENDING)
-    priority: Mapped[int] = mapped_column(default=0)  # larger first: an estimate of the chart's cost
-    budget: Mapped[float]  # seconds per symbolic proof, as given to 'verify --enqueue'
-    attempts: Mapped[int] = mapped_column(default=0)  # claims so far
-    max_attempts: Mapped[int] = mapped_column(default=3)
-    worker: Mapped[str | None] = mapped_column(String(200))  # "host:pid" of the last claimant
-    token: Mapped[str | None] = mapped_column(String(32))  # the current claim
-    lease_until: Mapped[dt.datetime | None]
-    error: Mapped[str | None] = mapped_column(Text)
-    created_at: Mapped[timestamp]
-    started_at: Mapped[dt.datetime | None]
-    finished_at: Mapped[dt.datetime | None]
