@@ -72,7 +72,7 @@ def scheduler(tmp_path_factory):
     address = f"tcp://127.0.0.1:{port}"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(TESTS), os.environ.get("PYTHONPATH", "")]))
     procs = [_dask("scheduler", "--host", "127.0.0.1", "--port", str(port), "--no-dashboard",
-                   log=logs / "scheduler.log")]
+                   log=logs / "scheduler.log", env=env)]  # env: the scheduler unpickles test functions too
     try:
         deadline = time.monotonic() + 60
         while True:

@@ -119,6 +119,11 @@ def work_unit(unit: dict[str, Any], docs: dict[str, Any], versions: dict[str, st
     return out
 
 
+def _documents(docs: dict[str, Any]) -> dict[str, Any]:
+    """The catalogue's documents as a task result, shared by every unit of a run."""
+    return docs
+
+
 # --------------------------------------------------------------------------- client side
 
 
@@ -236,7 +241,9 @@ def _run(client, units, versions, store, progress, work, run: ClusterRun, addres
 
     shared = units[0].get("docs", {})
     try:
-        docs = client.scatter(shared, broadcast=False, hash=False)
+        # the catalogue's documents once per run, as a task (not scattered data): when the worker
+        # holding them dies, the scheduler computes them again instead of losing every unit
+        docs = client.submit(_documents, shared, key=f"gravicat-documents-{uuid.uuid4().hex[:8]}", pure=False)
         futures, by_key = [], {}
         for unit in units:
             light = {k: v for k, v in unit.items() if k != "docs"}
