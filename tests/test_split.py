@@ -1,0 +1,120 @@
+"""The 3+1 split (gravicat.physics.split) against published slices of Schwarzschild."""
+
+from __future__ import annotations
+
+import pytest
+import sympy as sp
+
+from gravicat.errors import InputError
+from gravicat.format.bundled import bundled_path, read_bundled
+from gravicat.format.metricfile import build_chart
+from gravicat.physics.split import prove_constraints, spatial_ricci_scalar, split_chart
+
+
+def _chart(entry, chart):
+    return build_chart(read_bundled(bundled_path(entry)), chart)
+
+
+def _zero(e):
+    return sp.simplify(sp.sympify(e)) == 0
+
+
+def test_isotropic_slice_is_time_symmetric_and_conformally_flat():
+    # Schwarzschild in isotropic coordinates: K_ij = 0, gamma_ij = psi**4 delta_ij (flat metric in
+    # spherical form), psi = 1 + M/(2 rho), lapse (1 - M/(2 rho))/(1 + M/(2 rho)).
+    # Source: T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), section 3.1, eqs. 3.20-3.24
+    # (equation numbers recalled from memory).
+    sl = split_chart(_chart("schwarzschild", "isotropic"))
+    M, rho, theta = sp.symbols("M rho theta", positive=True)
+    assert all(_zero(k) for row in sl.extrinsic for k in row)
+    assert _zero(sl.trace_k)
+    psi = 1 + M / (2 * rho)
+    flat = [[1, 0, 0], [0, rho**2, 0], [0, 0, rho**2 * sp.sin(theta) ** 2]]
+    subs = {s: sp.Symbol(str(s), positive=True) for s in sl.spec.params + sl.spec.coords}
+    for i in range(3):
+        for j in range(3):
+            assert _zero(sp.sympify(sl.spatial_metric[i][j]).subs(subs) - psi**4 * flat[i][j])
+    assert _zero(sl.lapse.subs(subs) - (1 - M / (2 * rho)) / (1 + M / (2 * rho)))
+    assert all(_zero(b) for b in sl.shift)
+    c = prove_constraints(sl)
+    assert c["hamiltonian"]["status"] == "proved" and c["momentum"]["status"] == "proved"
+    # time symmetric vacuum: the Hamiltonian constraint is R = 0 (Baumgarte and Shapiro 2010, eq. 2.132
+    # with K_ij = 0; recalled from memory)
+    assert _zero(spatial_ricci_scalar(sl))
+
+
+def test_painleve_gullstrand_slice_is_flat_with_unit_lapse():
+    # Painleve-Gullstrand: gamma_ij flat, alpha = 1, beta^r = sqrt(2M/r),
+    # K_ij = sqrt(2M/r**3) (gamma_ij - (3/2) n_i n_j), K = (3/2) sqrt(2M/r**3) (sign: K = -nabla.n,
+    # positive for the converging infalling slices).
+    # Source: E. Poisson, A Relativist's Toolkit (2004), section 3.13 problem; also K. Martel and
+    # E. Poisson, Am. J. Phys. 69 (2001) 476 (closed form recalled from memory).
+    sl = split_chart(_chart("schwarzschild", "painleve-gullstrand"))
+    M, r, theta = sp.symbols("M r theta", positive=True)
+    subs = {s: sp.Symbol(str(s), positive=True) for s in sl.spec.params + sl.spec.coords}
+    assert sl.lapse == 1
+    assert _zero(sl.shift[0].subs(subs) - sp.sqrt(2 * M / r))
+    flat = [[1, 0, 0], [0, r**2, 0], [0, 0, r**2 * sp.sin(theta) ** 2]]
+    s = sp.sqrt(2 * M / r**3)
+    radial = [[1, 0, 0], [0, 0, 0], [0, 0, 0]]  # n_i n_j with n = dr
+    for i in range(3):
+        for j in range(3):
+            assert _zero(sp.sympify(sl.spatial_metric[i][j]).subs(subs) - flat[i][j])
+            want = s * (flat[i][j] - sp.Rational(3, 2) * radial[i][j])
+            assert _zero(sl.extrinsic[i][j].subs(subs) - want)
+    assert _zero(sl.trace_k.subs(subs) - sp.Rational(3, 2) * s)
+    c = prove_constraints(sl)
+    assert c["hamiltonian"]["status"] == "proved" and c["momentum"]["status"] == "proved"
+
+
+def test_null_slicing_is_refused():
+    # ingoing Eddington-Finkelstein: g^vv = 0, the surfaces v = const are null (Misner, Thorne and
+    # Wheeler, Gravitation 1973, box 31.2)
+    with pytest.raises(InputError, match="null"):
+        split_chart(_chart("schwarzschild", "ingoing-eddington-finkelstein"))
+
+
+def test_unknown_time_coordinate_is_one_line_error():
+    with pytest.raises(InputError, match="not a coordinate"):
+        split_chart(_chart("schwarzschild", "schwarzschild"), time="tau")
+
+
+def test_schwarzschild_chart_inside_is_refused_with_point():
+    # in Schwarzschild's own chart t is spacelike for r < 2M; the domain r > 2M is fine, a chart
+    # with time "r" there has g^rr = 1 - 2M/r > 0: not spacelike slices (common practice, no source)
+    with pytest.raises(InputError, match="not spacelike at"):
+        split_chart(_chart("schwarzschild", "schwarzschild"), time="r")
+
+
+def test_slipped_sign_fails_the_hamiltonian_constraint():
+    # the Painleve-Gullstrand chart with a slipped term in g_theta,theta is no vacuum:
+    # the constraint must fail with a counterexample point (Gauss-Codazzi: H = 2 n^a n^b G_ab)
+    spec = _chart("schwarzschild", "painleve-gullstrand")
+    T, r = spec.coords[0], spec.coords[1]
+    M = spec.params[0]
+    metric = sp.Matrix(spec.metric)
+    metric[2, 2] = r**2 + 2 * M * r  # was r**2: a slipped term in g_theta,theta
+    from dataclasses import replace
+
+    bad = replace(spec, metric=sp.ImmutableMatrix(metric))
+    c = prove_constraints(split_chart(bad))
+    assert c["hamiltonian"]["status"] == "violated"
+    assert c["hamiltonian"]["counterexample"] is not None
+    assert T in sl_params(bad)  # the time coordinate is a parameter of the three-chart
+
+
+def sl_params(spec):
+    return split_chart(spec).spatial_spec.params
+
+
+def test_dust_universe_has_energy_density():
+    # Einstein-de Sitter: K = -3 H (expanding slices, K < 0 in this convention), and the Hamiltonian
+    # constraint is Friedmann's equation 6 H^2 = 16 pi rho (Baumgarte and Shapiro 2010, section 2.7,
+    # recalled from memory); the constraint is proved from the entry's dust claim
+    doc = read_bundled(bundled_path("einstein-de-sitter"))
+    spec = build_chart(doc, doc.chart_names[0])
+    sl = split_chart(spec)
+    assert sl.rho8 is not None
+    c = prove_constraints(sl)
+    assert c["hamiltonian"]["status"] == "proved", c
+    assert c["momentum"]["status"] == "proved", c
