@@ -22,6 +22,7 @@ from gravicat.engine.rewrite import (
     _SIGNED,
     _principal,
     _split_linear,
+    merge_powers,
     prepare,
     settle_signs,
     simplify_lambertw,
@@ -248,6 +249,8 @@ class FieldScan:
             expr = settle_signs(expr, self.coords, self.relations)
         if self.relations is not None and expr.has(sp.LambertW):
             expr = simplify_lambertw(expr, self.coords, self.params, self.relations)
+        if self.relations is not None:
+            expr = merge_powers(expr, self.coords, self.relations)
         if self.alias_sub:
             expr = expr.xreplace(self.alias_sub)
         expr = prepare(expr)

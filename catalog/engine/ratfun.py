@@ -110,7 +110,14 @@ from gravicat.engine.generators import (
     arb_precision,
     nested_parts,
 )
-from gravicat.engine.rewrite import find_aliases, prepare, settle_signs, simplify_lambertw, unsettled
+from gravicat.engine.rewrite import (
+    find_aliases,
+    merge_powers,
+    prepare,
+    settle_signs,
+    simplify_lambertw,
+    unsettled,
+)
 
 __all__ = [  # every name other code imports from here, old and new
     "ARB_BITS", "AlgGen", "BaseGen", "BudgetExceeded", "Elem", "Field", "Point", "RootGen", "SqrtGen",
@@ -170,6 +177,8 @@ class Field(FieldScan, FieldArith, FieldRoots, FieldCalculus):
             # Abs, sign, Heaviside, DiracDelta that the region decides, then LambertW of u exp(u)
             exprs = [settle_signs(e, self.coords, relations) for e in exprs]
             exprs = [simplify_lambertw(sp.sympify(e), self.coords, self.params, relations) for e in exprs]
+            # (c**k)**x = c**(k x) where c > 0; symbolic powers of one base written one way
+            exprs = [merge_powers(e, self.coords, relations) for e in exprs]
         sub = self.alias_sub
         prepared = [prepare(e.xreplace(sub) if sub else e) for e in exprs]
         prepared += [prepare(X) for X in self.alias_sub]  # their own generators, for the explicit values

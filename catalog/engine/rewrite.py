@@ -175,6 +175,47 @@ def settle_signs(expr, coords, relations):
     return expr.replace(lambda e: isinstance(e, _SIGNED), rule)
 
 
+def merge_powers(expr, coords, relations):
+    """Powers the region lets us write one way, so equal values meet as one generator.
+
+    * ``(c**k)**x -> c**(k x)`` for a non-integer ``x`` where ``c > 0`` on the region (the rule
+      holds for every real ``k``, ``x`` only then): ``(r**(3/2))**(2/3) = r`` and
+      ``sqrt(1/r) = r**(-1/2)`` for ``r > 0``;
+    * ``b**x`` with a symbolic exponent and a base that is a rational function of the coordinates
+      and parameters: the base is brought to one canonical quotient (:func:`sympy.cancel`), so
+      ``((x - 1)/(x + 1))**delta`` and the same base written with another denominator are the
+      same generator. Nothing else is changed."""
+    expr = sp.sympify(expr)
+    if not expr.has(sp.Pow) or relations is None:
+        return expr
+    sub = _positive_parametrisation(tuple(coords), relations)
+    symbols = set(coords)
+
+    def nested(e):
+        return (isinstance(e, sp.Pow) and not e.exp.is_Integer and isinstance(e.base, sp.Pow)
+                and _sign_on(e.base.base, sub) == 1)
+
+    def merge(e):
+        return sp.Pow(e.base.base, e.base.exp * e.exp)
+
+    for _ in range(4):  # a few levels of nesting; each pass removes one
+        if not expr.has(sp.Pow) or not any(nested(a) for a in sp.preorder_traversal(expr)):
+            break
+        expr = expr.replace(nested, merge)
+
+    def symbolic(e):
+        if not isinstance(e, sp.Pow) or e.exp.is_Rational or e.exp.is_Number or e.base is sp.E:
+            return False
+        b = e.base
+        if not (b.free_symbols & symbols) or b.has(sp.Function, sp.Derivative):
+            return False
+        return b.is_rational_function(*sorted(b.free_symbols, key=str)) and sp.cancel(b) != b
+
+    if any(symbolic(a) for a in sp.preorder_traversal(expr)):
+        expr = expr.replace(symbolic, lambda e: sp.Pow(sp.cancel(e.base), e.exp))
+    return expr
+
+
 def unsettled(expr) -> list:
     """The distributional or sign-dependent sub-expressions (``DiracDelta``, ``Heaviside``, ``sign``,
     ``Abs``) left in ``expr``, as text: a value containing one is no result."""
