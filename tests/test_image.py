@@ -8,6 +8,7 @@ import subprocess
 
 import numpy as np
 import pytest
+import typer
 
 from gravicat.errors import InputError
 from gravicat.export.hamiltonian import c99_source, hamiltonian_system
@@ -164,3 +165,62 @@ def test_hamiltonian_refuses_missing_values_and_functions():
     spec = build_chart(doc, "boyer-lindquist")
     with pytest.raises(InputError, match="no value given"):
         hamiltonian_system(spec, {"M": 1})
+
+
+def _image_cli(tmp_path, *args):
+    # `gravicat image` is not yet registered in gravicat.cli (docs/commands.md needs its section first): a
+    # small app with the same root context runs the command module as the registered app would.
+    from typer.testing import CliRunner
+
+    from gravicat.cli import image
+    from gravicat.cli._base import AppContext
+    from gravicat.config import load_settings
+
+    app = typer.Typer()
+
+    @app.callback()
+    def root(ctx: typer.Context):
+        ctx.obj = AppContext(settings=load_settings(database=f"sqlite:///{tmp_path}/cat.sqlite", disable_plugins=None))
+
+    app.add_typer(image.app)
+    return CliRunner().invoke(app, ["image", *args])
+
+
+def test_image_command_writes_png_npz_and_json(tmp_path):
+    import json
+
+    kerr = str(bundled_path("kerr"))
+    out = tmp_path / "k.png"
+    result = _image_cli(tmp_path, kerr, "--observer", "r=30,theta=1.3", "--size", "16", "--scene", "disk",
+                        "--fov", "40deg", "-o", str(out), "--json")
+    assert result.exit_code == 0, result.output
+    report = json.loads(result.output)
+    assert set(report) >= {"seconds", "rays", "drift", "pixel", "shadow"}
+    assert report["rays"] == 256 and report["pixel"] == pytest.approx(math.radians(40) / 16)
+    assert report["ends"]["disk"] > 0 and report["drift"]["max"] < 1e-5
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    data = np.load(tmp_path / "k.npz")
+    on = data["end"] == "disk"
+    # every disk pixel has a finite, positive redshift factor; some are blueshifted by the approaching side
+    # (g > 1) and some strongly redshifted near the ISCO (common practice, no source)
+    z = data["redshift"][on]
+    assert np.all(np.isfinite(z) & (z > 0.02) & (z < 3.0)) and z.max() > 1.0 and z.min() < 0.7
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--observer", "r=1"], "outside the chart's domain"),
+    (["--observer", "r=30", "--fov", "wide"], "is not an angle"),
+    (["--observer", "r=30", "--scene", "movie"], "is not one of sky, disk"),
+    (["--observer", "x=3"], "x"),
+])
+def test_image_command_refusals(tmp_path, args, message):
+    result = _image_cli(tmp_path, str(bundled_path("kerr")), *args, "-o", str(tmp_path / "k.png"))
+    assert result.exit_code == 2
+    assert message in result.output and "Traceback" not in result.output
+
+
+def test_image_command_refuses_entries_without_a_camera(tmp_path):
+    result = _image_cli(tmp_path, str(bundled_path("flrw-flat")), "--observer", "r=3", "-o", str(tmp_path / "f.png"))
+    assert result.exit_code == 2 and "arbitrary functions" in result.output
+    result = _image_cli(tmp_path, str(bundled_path("btz")), "--observer", "r=3", "-o", str(tmp_path / "b.png"))
+    assert result.exit_code == 2 and result.output.startswith("Error: ") and "Traceback" not in result.output
