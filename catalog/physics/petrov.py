@@ -1,0 +1,478 @@
+"""Algebraic (Petrov) type of the Weyl tensor, decided exactly, and the Weyl scalars in a stated tetrad.
+
+Method (Stephani, Kramer, MacCallum, Hoenselaers & Herlt, Exact Solutions of Einstein's Field
+Equations, 2nd ed. 2003, ch. 4): the Weyl tensor acts on the six-dimensional space of bivectors as
+``W[(ab),(cd)] = C^ab_cd`` (index pairs a < b, c < d). It commutes with the Hodge dual ``*``
+(``** = -1`` in Lorentzian signature), so ``W`` is the real form of a complex 3x3 traceless matrix
+``Q`` (the Weyl matrix on self-dual bivectors), and the Petrov type is the Segre type of ``Q``:
+
+* the complex traces ``p_k = tr Q^k`` come from real traces only: ``p_k = (tr W^k - i tr(* W^k))/2``,
+  where ``*`` = ``sqrt(-det g)`` times a matrix rational in g (so ``p_k = a_k + i s b_k``,
+  ``s = sqrt(-det g)``, with ``a_k``, ``b_k`` rational functions of the chart: no square root is
+  needed to decide anything);
+* the invariants are ``I = p_2 / 2`` and ``J = p_3 / 6`` (normalised so that a type D field with
+  only ``Psi2`` has ``I = 3 Psi2^2``, ``J = -Psi2^3``; checked against the scalars of the automatic tetrad);
+* algebraically special <=> a repeated eigenvalue of ``Q`` <=> ``p_2^3 = 6 p_3^2`` (the criterion
+  ``I^3 = 27 J^2``), two rational identities (its real part and its imaginary part over ``s``);
+* type O: ``W = 0``; type N: ``W^2 = 0``, ``W != 0``; type III: ``p_2 = p_3 = 0`` (``Q`` nilpotent),
+  ``W^2 != 0``; type D: special, ``p_2 != 0`` and the minimal polynomial of ``Q`` is
+  ``(x - lambda)(x + 2 lambda)`` with ``lambda = -p_3/p_2``, tested on the real form as
+  ``(W^2 - 2 Re(lambda) W + |lambda|^2)(W^2 + 4 Re(lambda) W + 4 |lambda|^2) = 0``; type II: special,
+  ``p_2 != 0``, that product non-zero; type I: not special.
+
+The type is first read off at exact sample points of the domain (the engine's generic points);
+then the identities that define it are proved on the whole domain with the engine's exact zero
+test (:meth:`gravicat.engine.geometry.Geometry.verify`). If the proof does not finish within the
+budget, the type is reported as holding at the N sample points (method ``sampled``). Sub-regions
+where the type specialises (a set where a non-vanishing condition fails) are not searched.
+
+Defined in four dimensions only; other dimensions get "not defined".
+
+Status: a library slice (no command, no verifier plugin yet). Room: physics (uses only the engine's
+curvature through the objects it is handed; never re-derives it).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+__all__ = ["PetrovResult", "TYPES", "weyl_bivector", "petrov_type", "weyl_scalars_at", "tetrad_at",
+           "type_identities", "point_type"]
+
+TYPES = ("I", "II", "D", "III", "N", "O")
+
+_PAIRS = [(0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3)]
+
+
+def _levi(p):
+    """Sign of the permutation ``p`` of (0, 1, 2, 3), 0 if an index repeats."""
+    p = list(p)
+    if len(set(p)) < 4:
+        return 0
+    s = 1
+    for i in range(4):
+        for j in range(i + 1, 4):
+            if p[i] > p[j]:
+                s = -s
+    return s
+
+
+@dataclass
+class PetrovResult:
+    type: str | None  # I, II, D, III, N, O; None when not decided or not defined
+    method: str  # symbolic | sampled | none
+    where: str
+    points: int = 0
+    weyl_scalars: dict[str, str] = field(default_factory=dict)
+    invariants: dict[str, str] = field(default_factory=dict)
+    tetrad: dict[str, Any] = field(default_factory=dict)
+    detail: str = ""
+    principal_null_direction: str | None = None
+
+    def to_json(self) -> dict:
+        out = {
+            "type": self.type,
+            "method": self.method,
+            "where": self.where,
+            "weyl_scalars": self.weyl_scalars,
+            "invariants": self.invariants,
+            "tetrad": self.tetrad,
+        }
+        if self.detail:
+            out["detail"] = self.detail
+        if self.principal_null_direction:
+            out["principal_null_direction"] = self.principal_null_direction
+        return out
+
+
+# ---------------------------------------------------------------------------
+# the Weyl map on bivectors, over any backend of the engine's curvature
+
+
+class _Bivector:
+    """W (6x6), the rational part R of the Hodge dual (``* = s R``, ``s = sqrt(-det g)``), on backend X."""
+
+    def __init__(self, X):
+        self.X = X
+        self.zero = X.zero
+        self.W = weyl_bivector(X)
+        pairs, G2 = X._bivector_inverse
+        iz = X._iz
+        eps = [[_levi((*A, *B)) for B in _PAIRS] for A in _PAIRS]
+        self.R = [
+            [X._sum([G2[A, E] * eps[k][j] for k, E in enumerate(_PAIRS) if (A, E) in G2 and eps[k][j]])
+             for j in range(6)]
+            for A in _PAIRS
+        ]
+        self.s2 = -X.det
+        self._iz = iz
+
+    def mul(self, P, Q):
+        X, iz = self.X, self._iz
+        return [
+            [X._sum([P[i][k] * Q[k][j] for k in range(6) if not iz(P[i][k]) and not iz(Q[k][j])]) for j in range(6)]
+            for i in range(6)
+        ]
+
+    def trace(self, P):
+        return self.X._sum([P[i][i] for i in range(6) if not self._iz(P[i][i])])
+
+    def trace_prod(self, P, Q):
+        iz = self._iz
+        return self.X._sum([P[i][k] * Q[k][i] for i in range(6) for k in range(6)
+                            if not iz(P[i][k]) and not iz(Q[k][i])])
+
+    def invariants(self):
+        """(a2, b2, a3, b3): p_k = a_k + i s b_k, s = sqrt(-det g)."""
+        if "_inv" not in self.__dict__:
+            W2 = self.W2
+            a2 = self.trace(W2) / 2
+            b2 = -self.trace_prod(self.R, W2) / 2
+            a3 = self.trace_prod(W2, self.W) / 2
+            W3 = self.mul(W2, self.W)
+            b3 = -self.trace_prod(self.R, W3) / 2
+            self.__dict__["_inv"] = (a2, b2, a3, b3)
+        return self.__dict__["_inv"]
+
+    @property
+    def W2(self):
+        if "_W2" not in self.__dict__:
+            self.__dict__["_W2"] = self.mul(self.W, self.W)
+        return self.__dict__["_W2"]
+
+    def special(self):
+        """Real part and imaginary part (over s) of p_2^3 - 6 p_3^2: both vanish exactly when the type is special."""
+        a2, b2, a3, b3 = self.invariants()
+        s2 = self.s2
+        re = a2 * a2 * a2 - a2 * b2 * b2 * s2 * 3 - a3 * a3 * 6 + b3 * b3 * s2 * 6
+        im = a2 * a2 * b2 * 3 - b2 * b2 * b2 * s2 - a3 * b3 * 12
+        return re, im
+
+    def d_product(self):
+        """(W^2 - 2 Re(l) W + |l|^2)(W^2 + 4 Re(l) W + 4 |l|^2) with l = -p3/p2, scaled by (|p2|^2)^2 to stay
+        polynomial: zero exactly when Q's minimal polynomial is (x - l)(x + 2 l) (given p2 != 0)."""
+        a2, b2, a3, b3 = self.invariants()
+        s2 = self.s2
+        D = a2 * a2 + b2 * b2 * s2  # |p2|^2
+        reD = -(a3 * a2 + b3 * b2 * s2)  # Re(l) |p2|^2
+        absD = a3 * a3 + b3 * b3 * s2  # |l|^2 |p2|^2
+        W, W2, X, iz = self.W, self.W2, self.X, self._iz
+
+        def combo(c1, c0):
+            return [
+                [X._sum([t for t in (W2[i][j] * D if not iz(W2[i][j]) else None,
+                                     W[i][j] * c1 if not iz(W[i][j]) else None,
+                                     c0 if i == j else None) if t is not None])
+                 for j in range(6)]
+                for i in range(6)
+            ]
+
+        A = combo(reD * -2, absD)
+        B = combo(reD * 4, absD * 4)
+        return self.mul(A, B)
+
+
+def weyl_bivector(X):
+    """The Weyl tensor as the bivector map ``W[(ab)][(cd)] = C^ab_cd`` (a < b, c < d; 4 dimensions), from the
+    engine's mixed Riemann and Ricci tensors:
+    ``C^ab_cd = R^ab_cd - (d^a_c R^b_d - d^a_d R^b_c - d^b_c R^a_d + d^b_d R^a_c)/2 + R (d^a_c d^b_d - d^a_d d^b_c)/6``.
+    """
+    Rm = X.riemann_mixed
+    Ric = X.ricci_mixed
+    R = X.ricci_scalar
+    iz = X._iz
+    out = []
+    for a, b in _PAIRS:
+        row = []
+        for c, d in _PAIRS:
+            terms = []
+            v = Rm.get((a, b, c, d))
+            if v is not None:
+                terms.append(v)
+            rt = []
+            if a == c:
+                rt.append(Ric[b][d])
+            if a == d:
+                rt.append(-Ric[b][c])
+            if b == c:
+                rt.append(-Ric[a][d])
+            if b == d:
+                rt.append(Ric[a][c])
+            terms += [-t / 2 for t in rt if not iz(t)]
+            if not iz(R):
+                k = (1 if (a == c and b == d) else 0) - (1 if (a == d and b == c) else 0)
+                if k:
+                    terms.append(R * k / 6)
+            row.append(X._sum(terms) if terms else X.zero)
+        out.append(row)
+    return out
+
+
+def _all(mat):
+    return [v for row in mat for v in row]
+
+
+def type_identities(X, ptype: str) -> dict:
+    """The identities (name -> value that must vanish) defining ``ptype`` on the backend ``X``."""
+    B = _Bivector(X)
+    out = {}
+    if ptype == "O":
+        for i, A in enumerate(_PAIRS):
+            for j, C in enumerate(_PAIRS):
+                out[f"C^{A}_{C}"] = B.W[i][j]
+        return out
+    if ptype == "N":
+        for i in range(6):
+            for j in range(6):
+                out[f"W2[{i},{j}]"] = B.W2[i][j]
+        return out
+    if ptype == "I":
+        return {}
+    re, im = B.special()
+    out["Re(I^3-27J^2)"] = re
+    out["Im(I^3-27J^2)/s"] = im
+    if ptype == "III":
+        a2, b2, a3, b3 = B.invariants()
+        out.update({"Re I": a2, "Im I/s": b2, "Re J": a3, "Im J/s": b3})
+    if ptype == "D":
+        P = B.d_product()
+        for i in range(6):
+            for j in range(6):
+                out[f"mD[{i},{j}]"] = P[i][j]
+    return out
+
+
+def point_type(pd) -> tuple[str, bool]:
+    """The Petrov type at one sample point and whether a zero test there was only "0 within the working
+    precision" (an interval or floating point value, taken as 0: the symbolic proof settles it)."""
+    loose = [False]
+
+    def z(v):
+        t = pd.zero_test(v)
+        if t is None:
+            loose[0] = True
+            return True
+        return t
+
+    with pd.precision():
+        B = _Bivector(pd)
+        if all(z(v) for v in _all(B.W)):
+            return "O", loose[0]
+        re, im = B.special()
+        if not (z(re) and z(im)):
+            return "I", loose[0]
+        a2, b2, a3, b3 = B.invariants()
+        if z(a2) and z(b2):
+            return ("N" if all(z(v) for v in _all(B.W2)) else "III"), loose[0]
+        return ("D" if all(z(v) for v in _all(B.d_product())) else "II"), loose[0]
+
+
+def petrov_type(geometry, *, budget: float | None = None) -> PetrovResult:
+    """Decide the Petrov type of a prepared 4-dimensional chart (see the module docstring)."""
+    if geometry.n != 4:
+        return PetrovResult(None, "none", f"not defined: the Petrov classification is for 4 dimensions "
+                                          f"(this chart has {geometry.n})")
+    reason = geometry.degeneracy()
+    if reason is not None:
+        return PetrovResult(None, "none", f"not defined: the metric is degenerate ({reason})")
+    points = geometry.sample_points()
+    found = {}
+    loose = 0
+    for pd in points:
+        try:
+            t, inexact = point_type(pd)
+        except (ZeroDivisionError, ValueError):
+            continue
+        loose += inexact
+        found.setdefault(t, []).append(pd)
+    if not found:
+        return PetrovResult(None, "none", "not decided: no valid sample point")
+    if len(found) > 1:
+        shown = ", ".join(f"{t} at {len(p)} point(s)" for t, p in found.items())
+        return PetrovResult(None, "sampled", f"not constant on the domain: {shown}", points=len(points))
+    (ptype, pts), = found.items()
+    how = "exact" if not loose else f"({loose} in interval arithmetic)"
+    result = PetrovResult(ptype, "sampled", f"at {len(pts)} sample points {how}", points=len(pts))
+    ids = type_identities_fn(ptype)
+    if ids is None:
+        result.method = "symbolic"
+        if loose:  # I^3 - 27 J^2 certainly non-zero somewhere only if one point decided it exactly
+            result.method = "sampled"
+        result.where = (f"I^3 != 27 J^2 at {len(pts)} sample points {how}: type I on the domain except on a set "
+                        "of measure zero where it may specialise")
+        return result
+    outcome = geometry.verify(ids, budget=budget, what=f"the identities of type {ptype}")
+    if outcome.status == "pass":
+        result.method = "symbolic"
+        result.where = "proved on the domain (defining identities reduce to 0)"
+        if ptype != "O":
+            result.where += "; it may specialise where the Weyl tensor vanishes"
+    elif outcome.status == "fail":
+        result.type = None
+        result.where = f"not decided: {outcome.detail}"
+    else:
+        result.where = f"at {len(pts)} sample points {how} ({outcome.detail})"
+    return result
+
+
+def type_identities_fn(ptype):
+    if ptype == "I":
+        return None
+
+    def fn(X):
+        return type_identities(X, ptype)
+
+    return fn
+
+
+# ---------------------------------------------------------------------------
+# the tetrad and the Weyl scalars at a point (reporting)
+
+
+def tetrad_at(pd):
+    """An automatic null tetrad at a sample point (mpmath values) and its description.
+
+    e0: the unit normal of the first coordinate hypersurface x^i = const that is spacelike
+    (g^ii < 0), e0^a = -g^ai / sqrt(-g^ii); e1..e3: Gram-Schmidt of the remaining coordinate vectors
+    in chart order; then l, n = (e0 +- e1)/sqrt 2, m = (e2 + i e3)/sqrt 2 (l.n = -1, m.mbar = 1)."""
+    import mpmath as mp
+
+    n = pd.n
+    g = [[mp.mpf(_num(pd.g[a][b])) for b in range(n)] for a in range(n)]
+    gi = [[mp.mpf(_num(pd.ginv[a][b])) for b in range(n)] for a in range(n)]
+
+    def dot(u, v):
+        return mp.fsum(g[a][b] * u[a] * v[b] for a in range(n) for b in range(n))
+
+    i0 = next((i for i in range(n) if gi[i][i] < 0), None)
+    if i0 is None:
+        return None, "no coordinate hypersurface is spacelike at the point"
+    e0 = [-gi[a][i0] / mp.sqrt(-gi[i0][i0]) for a in range(n)]
+    frame = [e0]
+    for j in range(n):
+        if j == i0:
+            continue
+        v = [mp.mpf(1 if a == j else 0) for a in range(n)]
+        for k, e in enumerate(frame):
+            sign = -1 if k == 0 else 1
+            c = dot(v, e) * sign
+            v = [v[a] - c * e[a] for a in range(n)]
+        nv = dot(v, v)
+        if nv <= 0:
+            return None, "Gram-Schmidt met a non-spacelike vector"
+        frame.append([x / mp.sqrt(nv) for x in v])
+    r2 = mp.sqrt(2)
+    e0, e1, e2, e3 = frame
+    tet = {
+        "l": [(e0[a] + e1[a]) / r2 for a in range(n)],
+        "n": [(e0[a] - e1[a]) / r2 for a in range(n)],
+        "m": [mp.mpc(e2[a], e3[a]) / r2 for a in range(n)],
+    }
+    names = [str(c) for c in pd.coords]
+    others = [names[j] for j in range(n) if j != i0]
+    text = (f"e0 = unit normal of {names[i0]} = const; e1, e2, e3 = Gram-Schmidt of d/d{others[0]}, "
+            f"d/d{others[1]}, d/d{others[2]}; l, n = (e0 +- e1)/sqrt(2), m = (e2 + i e3)/sqrt(2)")
+    return tet, text
+
+
+def _num(v):
+    import mpmath as mp
+
+    try:
+        import flint
+
+        if isinstance(v, flint.fmpq):
+            return mp.mpf(int(v.p)) / int(v.q)
+        if isinstance(v, flint.arb):
+            return mp.mpf(v.mid().str(40, radius=False))
+    except ImportError:  # pragma: no cover
+        pass
+    return mp.mpf(v) if not isinstance(v, mp.mpc) else v
+
+
+def weyl_lower_at(pd):
+    """C_abcd at a sample point as mpmath numbers (dict over all index quadruples)."""
+    import mpmath as mp
+
+    W = weyl_bivector(pd)
+    n = pd.n
+    g = [[_num(pd.g[a][b]) for b in range(n)] for a in range(n)]
+    mixed = {}
+    for i, (a, b) in enumerate(_PAIRS):
+        for j, (c, d) in enumerate(_PAIRS):
+            v = _num(W[i][j]) if not pd._iz(W[i][j]) else mp.mpf(0)
+            for (p, q, s1) in ((a, b, 1), (b, a, -1)):
+                for (r, t, s2) in ((c, d, 1), (d, c, -1)):
+                    mixed[p, q, r, t] = v * s1 * s2
+    low = {}
+    for e in range(n):
+        for f in range(n):
+            for c in range(n):
+                for d in range(n):
+                    low[e, f, c, d] = mp.fsum(g[e][a] * g[f][b] * mixed.get((a, b, c, d), 0)
+                                              for a in range(n) for b in range(n))
+    return low
+
+
+def weyl_scalars_at(pd, tetrad=None):
+    """Psi0..Psi4 (mpmath complex) at a sample point in ``tetrad`` (default: :func:`tetrad_at`), with
+    Psi0 = C(l,m,l,m), Psi1 = C(l,n,l,m), Psi2 = C(l,m,mbar,n), Psi3 = C(l,n,mbar,n), Psi4 = C(n,mbar,n,mbar)."""
+    import mpmath as mp
+
+    if tetrad is None:
+        tetrad, _ = tetrad_at(pd)
+        if tetrad is None:
+            return None
+    C = weyl_lower_at(pd)
+    l, nn, m = tetrad["l"], tetrad["n"], tetrad["m"]
+    mb = [mp.conj(x) for x in m]
+    rng = range(pd.n)
+
+    def c4(u, v, w, x):
+        return mp.fsum(C[a, b, c, d] * u[a] * v[b] * w[c] * x[d]
+                       for a in rng for b in rng for c in rng for d in rng if C[a, b, c, d])
+
+    return {
+        "Psi0": c4(l, m, l, m),
+        "Psi1": c4(l, nn, l, m),
+        "Psi2": c4(l, m, mb, nn),
+        "Psi3": c4(l, nn, mb, nn),
+        "Psi4": c4(nn, mb, nn, mb),
+    }
+
+
+def invariants_from_scalars(psi):
+    """I = Psi0 Psi4 - 4 Psi1 Psi3 + 3 Psi2^2 and
+    J = det[[Psi4, Psi3, Psi2], [Psi3, Psi2, Psi1], [Psi2, Psi1, Psi0]]."""
+    p0, p1, p2, p3, p4 = (psi[f"Psi{k}"] for k in range(5))
+    I = p0 * p4 - 4 * p1 * p3 + 3 * p2 * p2
+    J = p4 * (p2 * p0 - p1 * p1) - p3 * (p3 * p0 - p1 * p2) + p2 * (p3 * p1 - p2 * p2)
+    return I, J
+
+
+def invariants_at(pd):
+    """(I, J) at a sample point from the tetrad-free traces (mpmath complex)."""
+    import mpmath as mp
+
+    with pd.precision():
+        B = _Bivector(pd)
+        a2, b2, a3, b3 = (_num(v) if not pd._iz(v) else mp.mpf(0) for v in B.invariants())
+        s = mp.sqrt(_num(B.s2))
+    p2 = mp.mpc(a2, s * b2)
+    p3 = mp.mpc(a3, s * b3)
+    return p2 / 2, p3 / 6
+
+
+def fmt_complex(z, digits: int = 12) -> str:
+    import mpmath as mp
+
+    z = mp.mpc(z)
+    scale = max(abs(z), mp.mpf(1))
+    re = z.real if abs(z.real) > scale * mp.mpf(10) ** -25 else mp.mpf(0)
+    im = z.imag if abs(z.imag) > scale * mp.mpf(10) ** -25 else mp.mpf(0)
+    if im == 0:
+        return mp.nstr(re, digits)
+    if re == 0:
+        return f"{mp.nstr(im, digits)}*I"
+    return f"{mp.nstr(re, digits)} {'+' if im > 0 else '-'} {mp.nstr(abs(im), digits)}*I"

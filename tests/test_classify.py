@@ -1,0 +1,121 @@
+"""Petrov type decided exactly (gravicat.physics.petrov), checked against published classifications.
+
+Sources: H. Stephani, D. Kramer, M. MacCallum, C. Hoenselaers and E. Herlt, Exact Solutions of
+Einstein's Field Equations, 2nd ed. (Cambridge 2003), ch. 4 (Petrov types, I^3 = 27 J^2) and the
+solution chapters (Schwarzschild, Kerr, Reissner-Nordstrom, Kerr-Newman, Taub-NUT, Vaidya, Melvin,
+Goedel: type D; pp-waves and plane waves: N; Robertson-Walker, de Sitter, anti-de Sitter, Einstein
+static, Bertotti-Robinson: O; Kasner with generic exponents: I).
+"""
+
+from __future__ import annotations
+
+import mpmath as mp
+import pytest
+
+from gravicat.engine.geometry import Geometry
+from gravicat.format.bundled import bundled_path, read_bundled
+from gravicat.format.metricfile import build_chart
+from gravicat.physics import petrov as P
+
+
+def _geometry(entry, chart=None):
+    doc = read_bundled(bundled_path(entry))
+    return Geometry(build_chart(doc, chart), budget=10)
+
+
+@pytest.mark.parametrize(
+    ("entry", "chart", "expected"),
+    [
+        # Stephani et al. 2003, sec. 15.4 (Schwarzschild), 21.1 (Kerr, Kerr-Newman), 15.4/16 (Reissner-Nordstrom),
+        # 20.2 (Taub-NUT), 15.4 (Vaidya), 22.2 (Melvin), 12.4 (Goedel): type D
+        ("schwarzschild", "schwarzschild", "D"),
+        ("schwarzschild", "painleve-gullstrand", "D"),
+        ("kerr", "boyer-lindquist", "D"),
+        ("kerr", "kerr-schild", "D"),
+        ("reissner-nordstrom", "static", "D"),
+        ("kerr-newman", "boyer-lindquist", "D"),
+        ("taub-nut", "standard", "D"),
+        ("vaidya", "ingoing", "D"),
+        ("melvin", "cylindrical", "D"),
+        ("godel", "original", "D"),
+        # Stephani et al. 2003, ch. 24 (pp-waves and plane waves): type N
+        ("pp-wave", "brinkmann", "N"),
+        ("plane-wave", "brinkmann", "N"),
+        # conformally flat: Robertson-Walker (ch. 14), de Sitter and anti-de Sitter (constant curvature),
+        # Einstein static universe, Bertotti-Robinson (sec. 12.3): type O
+        ("flrw-flat", "comoving-cartesian", "O"),
+        ("flrw-closed", "hyperspherical", "O"),
+        ("de-sitter", "static", "O"),
+        ("anti-de-sitter", "global", "O"),
+        ("einstein-static", "areal", "O"),
+        ("bertotti-robinson", "static", "O"),
+        # Kasner with generic exponents: type I (Stephani et al. 2003, sec. 13.3); Robinson-Trautman type III
+        # entry (Stephani et al. 2003, sec. 28.1)
+        ("kasner", "comoving", "I"),
+        ("robinson-trautman-type-iii", "null", "III"),
+    ],
+)
+def test_petrov_types_from_the_literature(entry, chart, expected):
+    res = P.petrov_type(_geometry(entry, chart))
+    assert res.type == expected, res.where
+    if expected != "I":
+        assert res.method == "symbolic" and res.where.startswith("proved on the domain")
+
+
+def test_other_dimensions_say_not_defined():
+    res = P.petrov_type(_geometry("tangherlini-5d", "static"))
+    assert res.type is None and res.where.startswith("not defined") and "4 dimensions" in res.where
+
+
+def test_a_wrong_type_is_not_proved():
+    # Kerr is type D, not N (Stephani et al. 2003, sec. 21.1): the identities of type N (W^2 = 0) fail
+    geo = _geometry("kerr", "boyer-lindquist")
+    out = geo.verify(P.type_identities_fn("N"), what="the identities of type N")
+    assert out.status == "fail"
+
+
+# values at 15 significant digits (the tetrad is built in double-like precision): compared to 1e-12 relative
+def _kinnersley_psi2(entry, chart, kerr):
+    geo = _geometry(entry, chart)
+    pd = geo.sample_points()[0]
+    num = {str(k): mp.mpf(v) for k, v in pd.sample.numeric.items()}
+    M, r, th = num["M"], num["r"], num["theta"]
+    a = num["a"] if kerr else mp.mpf(0)
+    Sigma_c = mp.mpc(r, a * mp.cos(th))  # r + i a cos(theta)
+    Delta = r * r - 2 * M * r + a * a
+    S = r * r + a * a * mp.cos(th) ** 2
+    # Kinnersley tetrad in Boyer-Lindquist coordinates (t, r, theta, phi) (Teukolsky 1973, eq. 4.4; recalled)
+    tet = {
+        "l": [(r * r + a * a) / Delta, 1, 0, a / Delta],
+        "n": [(r * r + a * a) / (2 * S), -Delta / (2 * S), 0, a / (2 * S)],
+        "m": [x / (mp.sqrt(2) * Sigma_c) for x in (mp.mpc(0, a * mp.sin(th)), 0, 1, mp.mpc(0, 1 / mp.sin(th)))],
+    }
+    with mp.workdps(40):
+        psi = P.weyl_scalars_at(pd, tet)
+    expected = -M / mp.mpc(r, -a * mp.cos(th)) ** 3
+    return psi, expected, pd
+
+
+def test_schwarzschild_psi2_in_the_kinnersley_tetrad():
+    # Psi2 = -M/r^3, the only non-zero Weyl scalar (Chandrasekhar, The Mathematical Theory of Black Holes,
+    # 1983, ch. 3; recalled from memory)
+    psi, expected, _ = _kinnersley_psi2("schwarzschild", "schwarzschild", kerr=False)
+    assert abs(psi["Psi2"] - expected) < mp.mpf(10) ** -12 * abs(expected)
+    for k in ("Psi0", "Psi1", "Psi3", "Psi4"):
+        assert abs(psi[k]) < mp.mpf(10) ** -12 * abs(expected)
+
+
+def test_kerr_psi2_in_the_kinnersley_tetrad_and_the_invariants():
+    # Psi2 = -M/(r - i a cos theta)^3 (Teukolsky 1973, Astrophys. J. 185, 635, eq. 4.5; recalled from memory)
+    psi, expected, pd = _kinnersley_psi2("kerr", "boyer-lindquist", kerr=True)
+    assert abs(psi["Psi2"] - expected) < mp.mpf(10) ** -12 * abs(expected)
+    for k in ("Psi0", "Psi1", "Psi3", "Psi4"):
+        assert abs(psi[k]) < mp.mpf(10) ** -12 * abs(expected)
+    # the tetrad-free invariants agree with I = 3 Psi2^2 and J = -Psi2^3 (Stephani et al. 2003, eq. 4.20)
+    I, J = P.invariants_at(pd)
+    assert abs(I - 3 * expected**2) < mp.mpf(10) ** -12 * abs(I)
+    assert abs(J + expected**3) < mp.mpf(10) ** -12 * abs(J)
+    # and with the scalars of the automatic tetrad (the invariants do not depend on the tetrad)
+    auto = P.weyl_scalars_at(pd)
+    I2, J2 = P.invariants_from_scalars(auto)
+    assert abs(I2 - I) < mp.mpf(10) ** -10 * abs(I)
