@@ -135,10 +135,18 @@ def _exact_decimals(tree: ast.expr, text: str) -> ast.expr:
                 return ast.copy_location(num, node)
             return ast.copy_location(ast.BinOp(num, ast.Div(), ast.Constant(value.denominator)), node)
 
-    try:
-        return Exact().visit(tree)
-    except RecursionError:
-        raise _Refuse("expression is nested too deeply") from None
+    # without recursion (issue 14 item 12: a flat sum of 500 terms is a left-deep tree 500 levels
+    # deep, which counts as terms, not as nesting): replace each float constant in its parent
+    exact = Exact()
+    if isinstance(tree, ast.Constant):
+        return exact.visit_Constant(tree)
+    for parent in ast.walk(tree):
+        for name, value in ast.iter_fields(parent):
+            if isinstance(value, ast.Constant):
+                setattr(parent, name, exact.visit_Constant(value))
+            elif isinstance(value, list):
+                value[:] = [exact.visit_Constant(v) if isinstance(v, ast.Constant) else v for v in value]
+    return tree
 
 
 @dataclass(frozen=True)

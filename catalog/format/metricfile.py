@@ -32,6 +32,7 @@ from gravicat.format.expr import (
     check_relation,
     names_in,
 )
+from gravicat.format.size import check_chart_size
 
 FORMAT = "gravicat-metric/1"
 EXPORT_FORMAT = "gravicat-export/1"
@@ -120,9 +121,10 @@ def _read_bytes(path: Path) -> bytes:
 
 def _text(path: Path) -> str:
     try:
-        return _read_bytes(path).decode("utf-8")
+        text = _read_bytes(path).decode("utf-8")
     except UnicodeDecodeError as exc:
         raise InputError(str(path), None, f"not UTF-8 text (byte {exc.start})") from None
+    return text.removeprefix("\ufeff")  # a UTF-8 byte-order mark is accepted (issue 14 item 12)
 
 
 def decode_toml(path: Path) -> RawDocument:
@@ -207,11 +209,18 @@ class _V:
                               "unknown key" + (f" (did you mean '{hint}'?)" if hint else ""))
         return value
 
-    def string(self, value, field: str, *, max_len: int = 20_000) -> str:
+    def string(self, value, field: str, *, max_len: int = 20_000, multiline: bool = False) -> str:
         if not isinstance(value, str):
             self.fail(field, f"must be a string, got {_kind(value)}")
         if len(value) > max_len:
             self.fail(field, f"is {len(value)} characters long (limit {max_len})")
+        bad = _CONTROL.search(value)
+        if bad is None and not multiline:
+            bad = _LINE_BREAK.search(value)
+        if bad is not None:
+            self.fail(field, f"contains the control character U+{ord(bad.group()):04X} at position {bad.start()} "
+                             "(text fields may not hold control characters" + ("; tab and newline are fine here)"
+                                                                               if multiline else ")"))
         return value
 
     def str_list(self, value, field: str) -> list[str]:
@@ -241,6 +250,12 @@ class _V:
         for rel in rels[1:]:
             out += f" {rel.op} {canonical(rel.right)}"
         return out
+
+
+# C0 controls but tab and newline, DEL, C1 controls, bidirectional overrides and isolates (issue 14
+# items 5, 11): refused in every text field; tab and newline only where a field allows several lines
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069\u2028\u2029]")
+_LINE_BREAK = re.compile("[\t\n]")
 
 
 def _kind(value) -> str:
@@ -280,7 +295,7 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
             v.fail(f"tags[{i}]", f"'{tag}' is not a tag (lowercase letters, digits and '-')")
     tags = sorted(set(tags))
     references = _references(v, raw.get("references", []))
-    notes = v.string(raw.get("notes", ""), "notes").strip()
+    notes = v.string(raw.get("notes", ""), "notes", multiline=True).strip()
 
     taken: dict[str, str] = {}
     params_raw = v.table(raw.get("parameters", {}), "parameters")
@@ -299,7 +314,7 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         for x, y in CONFLICTING_ASSUMPTIONS:
             if x in assume and y in assume:
                 v.fail(f"{field}.assume", f"'{x}' and '{y}' contradict each other")
-        entry = {"description": v.string(spec.get("description", ""), f"{field}.description").strip(),
+        entry = {"description": v.string(spec.get("description", ""), f"{field}.description", multiline=True).strip(),
                  "assume": sorted(set(assume))}
         if "range" in spec:
             entry["range"] = v.relation(spec["range"], param_names, f"{field}.range")
@@ -595,6 +610,7 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
         invariants[iname] = {"value": v.expr(iraw["value"], names, f"{field}.value"),
                              "source": v.string(iraw["source"], f"{field}.source", max_len=1_000).strip()}
     chart["invariants"] = invariants
+    check_chart_size(v.source, base, chart)  # degree, terms and coordinates after definitions (format/size.py)
     return chart
 
 

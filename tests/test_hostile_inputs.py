@@ -1,0 +1,112 @@
+"""Hostile metric files and text (issue 14): each case refused in one line naming the field, or
+accepted where the documented limits say it must be. Limits: docs/limits.md."""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import pytest
+
+from gravicat.errors import InputError
+from gravicat.format import size
+from gravicat.format.bundled import iter_bundled_documents
+from gravicat.format.expr import Names, check_expression
+from gravicat.format.metricfile import load_file, validate
+
+HOSTILE = Path(__file__).parent / "data" / "hostile"
+FLAT = "-dt**2 + dx**2 + dy**2 + dz**2"
+
+
+def entry(**extra) -> dict:
+    raw = {"id": "fen-hostile", "title": "Hostile", "field-equations": "none",
+           "charts": {"main": {"coordinates": ["t", "x", "y", "z"], "line-element": FLAT}}}
+    raw.update(extra)
+    return raw
+
+
+def one_line_error(raw: dict) -> str:
+    with pytest.raises(InputError) as info:
+        validate(raw, "fen.toml")
+    text = str(info.value)
+    assert "\n" not in text and "Traceback" not in text
+    return text
+
+
+# --------------------------------------------------------------------------- item 3: sizes at parse time
+
+@pytest.mark.parametrize(("name", "field", "words"), [
+    ("power-of-a-sum", "charts.cartesian.line-element", "degree 1002"),
+    ("nested-powers", "charts.cartesian.line-element", "degree about 10**9"),
+    ("chain-of-definitions", "charts.cartesian.define.a2", "degree 1000"),
+    ("forty-coordinates", "charts.big.coordinates", "40 coordinates exceed the limit 11"),
+    ("sum-in-a-function", "charts.cartesian.line-element", "degree 600"),
+])
+def test_files_that_would_expand_are_refused_at_parse_time(name, field, words):
+    """Issue 14 item 3: the four small files of the report (3.9 GB each before) and a power hidden
+    in a function's argument are refused in milliseconds, naming the field and the limit."""
+    start = time.process_time()
+    with pytest.raises(InputError) as info:
+        load_file(HOSTILE / f"{name}.toml")
+    assert time.process_time() - start < 2.0  # parse-time estimates only (common practice, no source)
+    assert f": {field}: " in str(info.value) and words in str(info.value)
+    assert "limit" in str(info.value) and "\n" not in str(info.value)
+
+
+def test_every_bundled_entry_passes_the_size_limits_with_margin():
+    """The limits leave a wide margin over the bundled catalogue (printed for docs/limits.md)."""
+    degree = terms = coords = 0.0
+    for doc in iter_bundled_documents():
+        for chart in doc.data["charts"].values():
+            coords = max(coords, len(chart["coordinates"]))
+            for s in size.chart_sizes(chart).values():
+                degree, terms = max(degree, s.worst_degree), max(terms, s.worst_terms)
+    print(f"bundled maxima: degree {degree:g}, terms {terms:g}, coordinates {coords:g}")
+    assert degree * 4 <= size.MAX_DEGREE
+    assert terms * 10 <= size.MAX_TERMS
+    assert coords + 4 <= size.MAX_COORDINATES
+
+
+def test_the_estimates_follow_the_algebra():
+    """A product adds degrees, a power multiplies them; (a + b + c + d + e)**20 has C(24, 4) = 10626
+    monomials (the number of monomials of degree n in k variables is C(n + k - 1, k - 1))."""
+    import ast
+
+    def m(text, known=None):
+        return size.measure(ast.parse(text, mode="eval").body, known or {})
+
+    assert m("x**3*y**2").degree == 5
+    assert round(m("(t + x + y + z + 1)**20").terms) == 10626
+    a2 = m("(x + 2)**10")
+    assert m("a2**10", {"a2": a2}).degree == 100
+
+
+# --------------------------------------------------------------------------- item 12: flat sums, BOM
+
+def test_a_flat_sum_of_500_terms_is_accepted():
+    """Issue 14 item 12: a left-deep sum counts terms, not nesting."""
+    text = " + ".join(f"0.5*x**{i % 7}" for i in range(500))
+    check_expression(text, Names(symbols=frozenset({"x"})), source="fen.toml", field="f")
+
+
+def test_a_byte_order_mark_is_accepted(tmp_path):
+    """Issue 14 item 12: a UTF-8 byte-order mark at the start of a file is stripped."""
+    path = tmp_path / "bom.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + b'id = "fen-bom"\ntitle = "BOM"\nfield-equations = "none"\n'
+                     b'[charts.main]\ncoordinates = ["t", "x"]\nline-element = "-dt**2 + dx**2"\n')
+    assert load_file(path).id == "fen-bom"
+
+
+# --------------------------------------------------------------------------- items 5, 11: control characters
+
+@pytest.mark.parametrize("bad", ["\x00", "\x1b]0;pwned\x07", "\x7f", "\x9b", "\u202e", "a\nb"])
+def test_control_characters_in_a_title_are_refused(bad):
+    """Issue 14 items 5 and 11: NUL, an OSC sequence, DEL, a C1 control, a bidi override, a newline."""
+    text = one_line_error(entry(title=f"Harmless{bad}demo"))
+    assert text.startswith("fen.toml: title: contains the control character U+")
+
+
+def test_notes_may_hold_newlines_and_tabs_but_not_escapes():
+    assert validate(entry(notes="line one\n\tline two"), "fen.toml").data["notes"] == "line one\n\tline two"
+    assert one_line_error(entry(notes="bell\x07")).startswith("fen.toml: notes: ")
+    assert one_line_error(entry(references=["Fen, A. \x1b[31m"])).startswith("fen.toml: references[0].citation: ")
