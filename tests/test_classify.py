@@ -119,3 +119,62 @@ def test_kerr_psi2_in_the_kinnersley_tetrad_and_the_invariants():
     auto = P.weyl_scalars_at(pd)
     I2, J2 = P.invariants_from_scalars(auto)
     assert abs(I2 - I) < mp.mpf(10) ** -10 * abs(I)
+
+
+# -- symmetries (gravicat.physics.killing) -------------------------------------------------------------
+
+
+def _kerr_spec():
+    return build_chart(read_bundled(bundled_path("kerr")), "boyer-lindquist")
+
+
+def test_obvious_killing_vectors_of_kerr():
+    # Kerr in Boyer-Lindquist coordinates is stationary and axisymmetric: d/dt and d/dphi (Wald 1984, sec. 12.3)
+    from gravicat.physics.killing import obvious_killing_vectors
+
+    assert obvious_killing_vectors(_geometry("kerr", "boyer-lindquist")) == ["t", "phi"]
+
+
+def test_rotation_killing_vector_of_schwarzschild_and_a_wrong_sign():
+    # spherical symmetry: xi = -sin(phi) d/dtheta - cot(theta) cos(phi) d/dphi is a Killing vector of every
+    # spherically symmetric metric (Wald 1984, sec. 6.1); flipping one sign breaks Killing's equation
+    import sympy as sp
+
+    from gravicat.physics.killing import prove_killing_vector
+
+    spec = build_chart(read_bundled(bundled_path("schwarzschild")), "schwarzschild")
+    t, r, th, ph = spec.coords
+    good = [0, 0, -sp.sin(ph), -sp.cos(th) / sp.sin(th) * sp.cos(ph)]
+    assert prove_killing_vector(spec, good).status == "pass"
+    bad = [0, 0, -sp.sin(ph), sp.cos(th) / sp.sin(th) * sp.cos(ph)]
+    assert prove_killing_vector(spec, bad).status == "fail"
+
+
+def _kerr_killing_tensor(sign):
+    # K_ab = Sigma (l_a n_b + n_a l_b) + r^2 g_ab with the Kinnersley l, n (Walker & Penrose, Commun. Math. Phys.
+    # 18 (1970) 265; Teukolsky 1973, eq. 4.4 for the tetrad; recalled from memory); Carter's constant is
+    # K_ab p^a p^b
+    import sympy as sp
+
+    spec = _kerr_spec()
+    t, r, th, ph = spec.coords
+    M, a = (next(p for p in spec.params if str(p) == name) for name in ("M", "a"))
+    Delta = r**2 - 2 * M * r + a**2
+    Sigma = r**2 + a**2 * sp.cos(th) ** 2
+    lu = sp.Matrix([(r**2 + a**2) / Delta, 1, 0, a / Delta])
+    nu = sp.Matrix([r**2 + a**2, -Delta, 0, a]) / (2 * Sigma)
+    g = spec.metric
+    ll, nl = g * lu, g * nu
+    K = [[sp.cancel(Sigma * (ll[i] * nl[j] + nl[i] * ll[j]) + sign * r**2 * g[i, j]) for j in range(4)]
+         for i in range(4)]
+    return spec, K
+
+
+def test_kerr_killing_tensor_holds_and_a_sign_flip_is_caught():
+    from gravicat.physics.killing import prove_killing_tensor
+
+    spec, K = _kerr_killing_tensor(+1)
+    assert prove_killing_tensor(spec, K).status == "pass"
+    spec, K = _kerr_killing_tensor(-1)
+    out = prove_killing_tensor(spec, K)
+    assert out.status == "fail" and out.counterexample
