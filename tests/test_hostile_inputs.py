@@ -110,3 +110,16 @@ def test_notes_may_hold_newlines_and_tabs_but_not_escapes():
     assert validate(entry(notes="line one\n\tline two"), "fen.toml").data["notes"] == "line one\n\tline two"
     assert one_line_error(entry(notes="bell\x07")).startswith("fen.toml: notes: ")
     assert one_line_error(entry(references=["Fen, A. \x1b[31m"])).startswith("fen.toml: references[0].citation: ")
+
+
+def test_stored_control_characters_are_escaped_on_output(capsys):
+    """Issue 14 item 11: text stored before control characters were refused (an OSC sequence that
+    sets the terminal's title) is printed escaped by every table (list, find, history) and by show."""
+    from gravicat.cli._output import emit_table, safe_text
+
+    osc = "Harmless\x1b]0;pwned\x07 demo\u202e"
+    emit_table([["fen-osc", osc]], ["id", "title"])
+    out = capsys.readouterr().out
+    assert "\x1b" not in out and "\x07" not in out and "\u202e" not in out
+    assert "\\x1b]0;pwned\\x07" in out and "\\u202e" in out
+    assert safe_text("two\nlines", keep_newlines=True) == "two\nlines"

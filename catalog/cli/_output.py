@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 import shutil
 import sys
 from collections.abc import Sequence
@@ -15,12 +16,31 @@ def emit_json(value: Any) -> None:
     typer.echo(json.dumps(value, ensure_ascii=False, indent=2))
 
 
+# control characters (C0, DEL, C1), bidirectional overrides and isolates: stored text (an entry added
+# before they were refused) never reaches the terminal as a command (issue 14 item 11)
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069\u2028\u2029]")
+
+
+def safe_text(text: Any, *, keep_newlines: bool = False) -> str:
+    """``text`` with every control character shown escaped (``\\x1b``, ``\\u202e``); newlines kept
+    when ``keep_newlines``."""
+
+    def escape(m: re.Match) -> str:
+        c = m.group()
+        if keep_newlines and c == "\n":
+            return c
+        return f"\\x{ord(c):02x}" if ord(c) < 0x100 else f"\\u{ord(c):04x}"
+
+    return _CONTROL.sub(escape, str(text))
+
+
 def emit_table(rows: Sequence[Sequence[Any]], headers: Sequence[str]) -> None:
     from tabulate import tabulate
 
     if not rows:
         typer.echo("(nothing)")
         return
+    rows = [[safe_text(c) if isinstance(c, str) else c for c in r] for r in rows]
     typer.echo(tabulate(rows, headers=headers, tablefmt="simple", disable_numparse=True))
 
 

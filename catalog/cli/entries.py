@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from gravicat.cli._base import app_context, reports_errors
-from gravicat.cli._output import emit_json, emit_table, short
+from gravicat.cli._output import emit_json, emit_table, safe_text, short
 from gravicat.errors import InputError
 
 app = typer.Typer()
@@ -204,10 +204,11 @@ def show(
     if as_json:
         emit_json(info)
         return
-    typer.echo(f"{info['id']}: {info['title']}  [{info['field_equations']}]")
+    typer.echo(f"{info['id']}: {safe_text(info['title'])}  [{info['field_equations']}]")
     if info["summary"]:
-        typer.echo(f"  {info['summary']}")
-    typer.echo(f"  revision {info['number']} {info['revision'][:12]} by {info['author']} at {info['created_at']}")
+        typer.echo(f"  {safe_text(info['summary'])}")
+    typer.echo(f"  revision {info['number']} {info['revision'][:12]} by {safe_text(info['author'])} "
+               f"at {info['created_at']}")
     if info["tags"]:
         typer.echo(f"  tags: {', '.join(info['tags'])}")
     if info["parameters"]:
@@ -229,7 +230,7 @@ def show(
     if info["references"]:
         typer.echo("\nreferences:")
         for r in info["references"]:
-            typer.echo(f"  - {r['citation']}" + (f" doi:{r['doi']}" if r.get("doi") else ""))
+            typer.echo(f"  - {safe_text(r['citation'])}" + (f" doi:{safe_text(r['doi'])}" if r.get("doi") else ""))
     typer.echo("\nchecks:")
     if checks:
         emit_table([[c["chart"], c["check"], c["status"], c["method"], short(c["detail"], 60)] for c in checks],
