@@ -72,3 +72,12 @@ def test_symbolic_powers_of_one_base_written_two_ways():
 def test_symbolic_powers_of_different_bases_stay_different():
     expr = ((x - 1) / (x + 1)) ** delta - ((x - 1) / (x + 2)) ** delta
     assert not _zero((x,), (delta,), (x > 1,), expr)
+
+
+def test_half_power_of_a_symbolic_power_stays_the_root_of_that_element():
+    # the static observer of Zipoy-Voorhees: u^t = f**(-1/2), f = ((x - 1)/(x + 1))**delta, and
+    # g(u, u) = -f (u^t)**2 = -1 must still be decided (f**(-1/2) is not split into b**(-delta/2))
+    f = ((x - 1) / (x + 1)) ** delta
+    ut = sp.Pow(f, sp.Rational(-1, 2), evaluate=False)
+    assert sp.simplify((f * ut**2 - 1).xreplace({x: sp.Symbol("x", positive=True) + 1})) == 0
+    assert _zero((x,), (delta,), (x > 1,), f * ut**2 - 1)

@@ -178,8 +178,8 @@ def settle_signs(expr, coords, relations):
 def merge_powers(expr, coords, relations):
     """Powers the region lets us write one way, so equal values meet as one generator.
 
-    * ``(c**k)**x -> c**(k x)`` for a non-integer ``x`` where ``c > 0`` on the region (the rule
-      holds for every real ``k``, ``x`` only then): ``(r**(3/2))**(2/3) = r`` and
+    * ``(c**k)**x -> c**(k x)`` for rational ``k`` and non-integer rational ``x`` where ``c > 0`` on
+      the region (the rule holds for every real ``k``, ``x`` only then): ``(r**(3/2))**(2/3) = r`` and
       ``sqrt(1/r) = r**(-1/2)`` for ``r > 0``;
     * ``b**x`` with a symbolic exponent and a base that is a rational function of the coordinates
       and parameters: the base is brought to one canonical quotient (:func:`sympy.cancel`), so
@@ -192,7 +192,10 @@ def merge_powers(expr, coords, relations):
     symbols = set(coords)
 
     def nested(e):
-        return (isinstance(e, sp.Pow) and not e.exp.is_Integer and isinstance(e.base, sp.Pow)
+        # rational exponents only: b**(delta/2) and b**delta would be unrelated generators, while
+        # (b**delta)**(1/2) is the square root of one element
+        return (isinstance(e, sp.Pow) and e.exp.is_Rational and not e.exp.is_Integer
+                and isinstance(e.base, sp.Pow) and e.base.exp.is_Rational
                 and _sign_on(e.base.base, sub) == 1)
 
     def merge(e):
