@@ -104,10 +104,12 @@ def test_zamo_inside_ergoregion_and_refusals():
         build_camera(system, model, {"r": 10.0, "theta": 0.0})
 
 
-def test_kerr_shadow_outline_against_bardeen():
+@pytest.mark.parametrize("inclination", [math.pi / 2, math.pi / 3])
+def test_kerr_shadow_outline_against_bardeen(inclination):
     # Bardeen (1973), in Black Holes (Les Houches), eqs. for the critical impact parameters of spherical photon
     # orbits: xi = (r^2 (3M - r) - a^2 (r + M))/(a (r - M)), eta = r^3 (4 a^2 M - r (r - 3M)^2)/(a^2 (r - M)^2);
-    # an observer far away on the equator sees the edge at alpha = -xi, beta = +-sqrt(eta) (units of M, divided
+    # an observer far away at inclination theta_O sees the edge at alpha = -xi/sin(theta_O),
+    # beta = +-sqrt(eta + a^2 cos^2(theta_O) - xi^2 cot^2(theta_O)) (units of M, divided
     # by the observer's r_O = 1000 M for angles; the finite distance changes them by O(M/r_O) = 1e-3 relative).
     # 40x40 pixels, field of view 0.024 rad (about 5 s); the 256x256 run is the benchmark.
     from gravicat.physics.camera import shadow_outline, trace_image
@@ -115,7 +117,7 @@ def test_kerr_shadow_outline_against_bardeen():
     doc, spec, system, vals = _system("kerr", "boyer-lindquist")
     M, a, r_obs = 1.0, 0.9, 1000.0
     model = EquatorialChart(spec, doc.chart_names)
-    camera = build_camera(system, model, {"r": r_obs})
+    camera = build_camera(system, model, {"r": r_obs, "theta": inclination})
     rh = M + math.sqrt(M * M - a * a)
     image = trace_image(system, camera, Stops(radial=1, inner=1.01 * rh, outer=2 * r_obs, polar=2), size=40,
                         fov=0.024, max_steps=4000, max_cpu=120)
@@ -123,9 +125,11 @@ def test_kerr_shadow_outline_against_bardeen():
     r = np.linspace(1.0001, 4.9999, 20000)
     xi = (r * r * (3 * M - r) - a * a * (r + M)) / (a * (r - M))
     eta = r**3 * (4 * a * a * M - r * (r - 3 * M) ** 2) / (a * a * (r - M) ** 2)
-    keep = eta >= 0
-    curve = np.vstack([np.column_stack([-xi[keep], np.sqrt(eta[keep])]),
-                       np.column_stack([-xi[keep], -np.sqrt(eta[keep])])]) / r_obs
+    c, s = math.cos(inclination), math.sin(inclination)
+    b2 = eta + a * a * c * c - xi * xi * c * c / (s * s)
+    keep = b2 >= 0
+    curve = np.vstack([np.column_stack([-xi[keep] / s, np.sqrt(b2[keep])]),
+                       np.column_stack([-xi[keep] / s, -np.sqrt(b2[keep])])]) / r_obs
     dist = np.min(np.hypot(outline[:, None, 0] - curve[None, :, 0], outline[:, None, 1] - curve[None, :, 1]), axis=1)
     assert len(outline) > 40
     assert dist.max() <= image.pixel
