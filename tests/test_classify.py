@@ -178,3 +178,57 @@ def test_kerr_killing_tensor_holds_and_a_sign_flip_is_caught():
     spec, K = _kerr_killing_tensor(-1)
     out = prove_killing_tensor(spec, K)
     assert out.status == "fail" and out.counterexample
+
+
+# -- matter and energy conditions (gravicat.physics.matter) --------------------------------------------
+
+
+def test_morris_thorne_violates_the_null_energy_condition_at_the_throat():
+    # rho + p_r = -b0^2/(4 pi r^4) < 0 (b = b0^2/r, Phi = 0): Morris & Thorne, Am. J. Phys. 56 (1988) 395,
+    # eqs. 12-14 (exotic matter at the throat r = b0)
+    import sympy as sp
+
+    from gravicat.physics.matter import diagonal_eigenvalues, energy_conditions
+
+    geo = _geometry("morris-thorne", "areal")
+    ev = diagonal_eigenvalues(geo, geo.spec)
+    assert ev is not None
+    r = next(c for c in geo.coords if str(c) == "r")
+    b0 = next(p for p in geo.params if str(p) == "b0")
+    rho, p_r = -ev["t"], ev["r"]
+    at_throat = sp.simplify((rho + p_r).subs(r, b0))
+    assert sp.simplify(at_throat + 1 / (4 * sp.pi * b0**2)) == 0
+    ec = energy_conditions(geo, geo.spec)
+    assert ec["null"]["status"] == "violated" and ec["null"]["counterexample"]["vector"]
+
+
+def test_alcubierre_eulerian_energy_density_is_negative():
+    # T_ab n^a n^b = -(vs^2 / (32 pi)) (y^2 + z^2)/rs^2 (df/drs)^2 <= 0 for the Eulerian observers
+    # (Alcubierre, Class. Quantum Grav. 11 (1994) L73, eq. 19): negative wherever df/drs != 0
+    from gravicat.physics.matter import eulerian_energy_density8
+
+    geo = _geometry("alcubierre", None)
+    signs = []
+    for pd in geo.sample_points():
+        with pd.precision():
+            v = eulerian_energy_density8(pd, geo.spec)
+            z = pd.zero_test(v)
+            if z is False:
+                signs.append(v < 0)
+    assert signs and all(signs)
+
+
+def test_a_regular_black_hole_core_violates_the_strong_condition():
+    # Hayward's regular core is de Sitter-like (rho = -p): rho + sum p_i < 0 near r = 0 (Hayward, Phys. Rev.
+    # Lett. 96 (2006) 031103; the de Sitter core violates the strong condition - recalled from memory)
+    import sympy as sp
+
+    from gravicat.physics.matter import diagonal_eigenvalues
+
+    geo = _geometry("hayward", "static")
+    ev = diagonal_eigenvalues(geo, geo.spec)
+    r = next(c for c in geo.coords if str(c) == "r")
+    vals = {str(p): sp.Rational(1) for p in geo.params}
+    subs = {p: vals[str(p)] for p in geo.params}
+    sec = (-ev["t"] + ev["r"] + ev["theta"] + ev["phi"]).subs(subs).subs(r, sp.Rational(1, 10))
+    assert sec.evalf() < 0
