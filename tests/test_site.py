@@ -1,0 +1,116 @@
+"""The static site (gravicat.api.site): deterministic bytes, incremental rebuilds, escaping, --only."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from sqlalchemy.orm import Session
+
+from gravicat.api.catalogue import Catalogue
+from gravicat.api.site import build_site, collect
+from gravicat.errors import InputError, NotFound
+from gravicat.format.bundled import bundled_path
+from gravicat.registry import exporters, make_plugin_manager
+from gravicat.store.db import make_engine
+
+SMALL = ("schwarzschild", "flrw-flat", "minkowski")
+
+
+@pytest.fixture
+def small(tmp_path, db_url):
+    with Catalogue(db_url) as cat:
+        cat.init(bundled=False)
+        for slug in SMALL:
+            cat.add(bundled_path(slug), author="site test")
+    return db_url
+
+
+def _build(url, out, only=None):
+    engine = make_engine(url)
+    with Session(engine) as s:
+        entries = collect(s, only)
+    engine.dispose()
+    return build_site(entries, out, exporters=exporters(make_plugin_manager()), jobs=2)
+
+
+def _tree(root):
+    return {p.relative_to(root).as_posix(): p.read_bytes() for p in sorted(root.rglob("*")) if p.is_file()}
+
+
+def test_same_catalogue_same_bytes_and_incremental(small, tmp_path):
+    a, b = tmp_path / "a", tmp_path / "b"
+    first = _build(small, a)
+    assert sorted(first.rendered) == sorted(SMALL) and first.index_written
+    _build(small, b)
+    assert _tree(a) == _tree(b)
+    again = _build(small, a)
+    assert again.rendered == [] and again.unchanged == 3 and again.written == [] and not again.index_written
+    # change one entry: only its pages and the index are written again
+    doc = json.loads((a / "downloads/minkowski.metric.json").read_text())
+    doc["summary"] = "Flat spacetime, edited."
+    edited = tmp_path / "minkowski.json"
+    edited.write_text(json.dumps(doc))
+    with Catalogue(small) as cat:
+        cat.add(edited, author="site test", message="summary")
+    changed = _build(small, a)
+    assert changed.rendered == ["minkowski"] and changed.unchanged == 2 and changed.index_written
+    assert set(changed.written) <= {"index.html", "entries/minkowski.html", "downloads/minkowski.metric.json"}
+    assert "entries/minkowski.html" in changed.written
+    assert "Flat spacetime, edited." in (a / "entries/minkowski.html").read_text()
+    assert "2 rendered" not in changed.line() and "1 rendered" in changed.line()
+
+
+def test_catalogue_text_is_escaped(small, tmp_path):
+    from gravicat.format.bundled import read_bundled
+
+    data = dict(read_bundled(bundled_path("minkowski")).data)
+    data["id"] = "hostile"
+    data["title"] = "<script>alert(1)</script> & co"
+    data["summary"] = 'a "quoted" <b>bold</b> summary'
+    path = tmp_path / "hostile.json"
+    path.write_text(json.dumps(data))
+    with Catalogue(small) as cat:
+        cat.add(path, author="site test")
+    out = tmp_path / "site"
+    _build(small, out, only=["hostile"])
+    page = (out / "entries/hostile.html").read_text()
+    index = (out / "index.html").read_text()
+    for text in (page, index):
+        assert "<script>alert" not in text
+        assert "&lt;script&gt;alert(1)&lt;/script&gt; &amp; co" in text
+    assert "&lt;b&gt;bold&lt;/b&gt;" in page
+
+
+def test_only_and_page_content(small, tmp_path):
+    out = tmp_path / "site"
+    rep = _build(small, out, only=["schwarzschild"])
+    assert rep.entries == 1 and rep.rendered == ["schwarzschild"]
+    assert not (out / "entries/flrw-flat.html").exists()
+    page = (out / "entries/schwarzschild.html").read_text()
+    assert page.count("<math") >= 3  # line elements, domains of its charts
+    assert 'id="orbits"' in page and "ISCO" in page
+    # Schwarzschild ISCO at r = 6M and photon orbit at 3M with M = 1 (Carroll, Spacetime and Geometry, 2004,
+    # eq. 5.71 and the discussion after it); values compared as printed to 10 significant digits
+    assert "<td>6</td>" in page and "<td>3</td>" in page
+    assert (out / "figures/schwarzschild.svg").read_bytes().startswith(b"<?xml")
+    assert 'alt="Effective potential' in page
+    assert "Exports are offered for verified revisions only" in page  # never verified here
+    with pytest.raises(NotFound, match="--only: no entry 'nope'"):
+        _build(small, out, only=["nope"])
+    # growing the site renders the new entries, and schwarzschild again: its limit now links to minkowski
+    rep = _build(small, out)
+    assert sorted(rep.rendered) == ["flrw-flat", "minkowski", "schwarzschild"] and rep.removed == []
+    assert 'href="minkowski.html' in (out / "entries/schwarzschild.html").read_text()
+
+
+def test_out_dir_must_be_a_folder_or_an_earlier_site(small, tmp_path):
+    (tmp_path / "file").write_text("x")
+    with pytest.raises(InputError, match="not a folder"):
+        _build(small, tmp_path / "file")
+    busy = tmp_path / "busy"
+    busy.mkdir()
+    (busy / "mine.txt").write_text("keep")
+    with pytest.raises(InputError, match="not empty"):
+        _build(small, busy)
+    assert (busy / "mine.txt").read_text() == "keep"
