@@ -276,16 +276,23 @@ def petrov_type(geometry, *, budget: float | None = None) -> PetrovResult:
     reason = geometry.degeneracy()
     if reason is not None:
         return PetrovResult(None, "none", f"not defined: the metric is degenerate ({reason})")
-    points = geometry.sample_points()
+    from gravicat.engine.geometry import BudgetExceeded
+
+    budget = geometry.budget if budget is None else budget
     found = {}
     loose = 0
-    for pd in points:
-        try:
-            t, inexact = point_type(pd)
-        except (ZeroDivisionError, ValueError):
-            continue
-        loose += inexact
-        found.setdefault(t, []).append(pd)
+    try:  # the sampled stage shares the budget (the symbolic values the points need count against it)
+        with geometry.deadline(budget):
+            points = geometry.sample_points()
+            for pd in points:
+                try:
+                    t, inexact = point_type(pd)
+                except (ZeroDivisionError, ValueError):
+                    continue
+                loose += inexact
+                found.setdefault(t, []).append(pd)
+    except BudgetExceeded:
+        return PetrovResult(None, "none", f"not decided: the sample points were not ready within {budget:g} s")
     if not found:
         return PetrovResult(None, "none", "not decided: no valid sample point")
     if len(found) > 1:
