@@ -123,3 +123,15 @@ def test_stored_control_characters_are_escaped_on_output(capsys):
     assert "\x1b" not in out and "\x07" not in out and "\u202e" not in out
     assert "\\x1b]0;pwned\\x07" in out and "\\u202e" in out
     assert safe_text("two\nlines", keep_newlines=True) == "two\nlines"
+
+
+@pytest.mark.parametrize("pattern", ["%", "_", "a%", "%%"])
+def test_like_wildcards_in_a_revision_are_literal(empty_catalogue, pattern):
+    """Issue 14 item 12: '--revision %' (or ID@%) no longer resolves to some revision."""
+    cli = empty_catalogue
+    assert cli("add", str(Path(__file__).parent / "data" / "rindler-demo.toml")).exit_code == 0
+    for args in (["show", f"halcyon-rindler@{pattern}"], ["show", "halcyon-rindler", "--revision", pattern]):
+        r = cli(*args)
+        assert r.exit_code == 2, r.output
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith("Error: halcyon-rindler"), lines

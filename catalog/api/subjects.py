@@ -142,7 +142,13 @@ def find_revision(session: Session, ref: SubjectRef):
         matches = list(session.scalars(q.where(Revision.number == int(rev))))
         what = f"no revision {rev} of {slug}"
     else:
-        matches = list(session.scalars(q.where(Revision.hash.like(f"{rev.lower()}%"))))
+        # a hash prefix is compared as text, never as a LIKE pattern ('%' and '_' are literal: issue 14 item 12)
+        from sqlalchemy import func
+
+        if not rev or any(c not in "0123456789abcdef" for c in rev.lower()):
+            raise NotFound(f"{ref.text}: '{rev}' is not a revision number or a hash prefix "
+                           f"(see 'gravicat history {slug}')")
+        matches = list(session.scalars(q.where(func.substr(Revision.hash, 1, len(rev)) == rev.lower())))
         what = f"no revision of {slug} starts with {rev}"
     if not matches:
         raise NotFound(f"{ref.text}: {what} (see 'gravicat history {slug}')")
