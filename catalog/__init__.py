@@ -15,7 +15,7 @@ The Python API (documented in docs/api.md)::
 use (module ``__getattr__``), so ``import gravicat`` stays as light as the command line needs.
 """
 
-from gravicat.checks import CheckResult, Method, Status
+from gravicat.checks import CheckResult, ExportContext, Method, PreparedChart, Status
 from gravicat.errors import (
     CatalogError,
     CheckFailed,
@@ -64,10 +64,12 @@ __all__ = [
     "CheckResult",
     "DatabaseError",
     "Entry",
+    "ExportContext",
     "InputError",
     "Method",
     "NotFound",
     "PluginError",
+    "PreparedChart",
     "SchemaOutdated",
     "Status",
     "UnsafeExpression",

@@ -34,9 +34,11 @@ def register_verifiers() -> list[Verifier]:
     ``verify``, ``plugins``). All implementations run and their lists are
     joined; verifier names must be unique across plugins.
 
-    :return: objects with ``name``, ``version`` and ``check(subject)``, where
-        ``subject`` is a prepared :class:`gravicat.engine.geometry.Geometry` and the
-        result a list of :class:`gravicat.CheckResult`.
+    :return: objects with ``name``, ``version`` and
+        ``check(subject: gravicat.PreparedChart) -> list[gravicat.CheckResult]``;
+        ``subject`` is the prepared chart, typed by the :class:`gravicat.PreparedChart`
+        Protocol (exactly what a verifier may use). Optional ``screens_repairs = True``:
+        ``repair`` reruns the verifier on its candidates (selected by this attribute).
     """
 
 
@@ -49,7 +51,10 @@ def register_exporters() -> list[Exporter]:
     joined; target names must be unique across plugins.
 
     :return: objects with ``name`` (the ``--to`` value), ``version``,
-        ``suffix`` and ``export(document, context) -> str``.
+        ``suffix`` and ``export(document, context: gravicat.ExportContext) -> str``;
+        ``context`` is the frozen :class:`gravicat.ExportContext` (revision, checks,
+        chart, params, allow_unverified, ...). Catalogue text must reach the output
+        only through the target language's escaping (see ``gravicat.export.escape``).
     """
 
 

@@ -12,14 +12,21 @@ ids with '-' turned into '_'):
 
 ``dg[c][a][b] = d_c g_ab``, ``gamma[a][b][c] = Gamma^a_bc``; ``params`` in the order of
 ``P_PARAMETERS`` (may be NULL when there are none). The first four return 0 on success, 1 when
-a result is not finite (a point off the chart) and 2 when the metric is singular. The
-functions are ``static inline`` unless ``GRAVICAT_API`` is defined before the header is included
-(define it empty in one translation unit to get ordinary external definitions).
+a result is not finite (a point off the chart) and 2 when the metric is singular. Catalogue
+text reaches the header only through :mod:`gravicat.export.escape` (``c_comment`` in the comment
+block, ``c_string`` for literals). The functions are ``static inline`` unless ``GRAVICAT_API``
+is defined before the header is included (define it empty in one translation unit to get ordinary external definitions).
 """
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import ExportContext
+    from gravicat.format.metricfile import MetricDocument
 
 WIDTH = 100
 
@@ -111,13 +118,14 @@ def c_identifier(entry: str, chart: str) -> str:
 
 class CExporter:
     name = "c"
-    version = "1"
+    version = "2"
     suffix = ".h"
 
-    def export(self, document, context) -> str:
+    def export(self, document: MetricDocument, context: ExportContext) -> str:
         import sympy
 
         from gravicat.export.codegen import identifiers, numeric_parts, prepare, relation_margin, wrap
+        from gravicat.export.escape import c_comment, c_string
 
         prep = prepare(document, context, self, numeric=True)
         parts = numeric_parts(prep)
@@ -196,15 +204,13 @@ class CExporter:
         ]
         out = ["/*"]
         for line in header:
-            for part in wrap(line.replace("*/", "* /"), WIDTH - 3, "    "):
+            for part in wrap(c_comment(line), WIDTH - 3, "    "):
                 out.append(f" * {part}".rstrip())
         out.append(" */")
         guard = f"GRAVICAT_{upper}_H"
         defaults = [prep.spec.defaults.get(p) for p in free]
 
-        def cstr(text):
-            return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
-
+        cstr = c_string
         out += [
             f"#ifndef {guard}",
             f"#define {guard}",

@@ -10,8 +10,13 @@ For ``none`` the non-zero components of the Einstein tensor are reported.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
 from gravicat.physics.claims import CLAIMS
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 def residuals(spec, claim):
@@ -30,7 +35,7 @@ class FieldEquationsCheck:
     version = "2"
     screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         from gravicat.physics.claims import missing_matter
         from gravicat.plugins._common import from_outcome, result, skipped_if_degenerate
 

@@ -11,7 +11,12 @@ then checked: sampled stage, then exact proof.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 ATTRS = {"ricci-scalar": "ricci_scalar", "kretschmann": "kretschmann", "weyl-square": "weyl_square"}
 
@@ -20,7 +25,7 @@ class InvariantsCheck:
     name = "invariants"
     version = "2"
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         import sympy as sp
 
         from gravicat.plugins._common import from_outcome, result, skipped_if_degenerate

@@ -5,12 +5,20 @@ definitions such as Sigma and Delta), the definitions it uses, the chart's domai
 parameter ranges (or the values fixed with ``params``). With ``christoffel`` in the context a
 second ``align`` lists the nonzero Christoffel symbols Gamma^a_bc (b <= c; they are symmetric
 in b and c), computed exactly and factored, with the definitions put back where a factor is
-literally one of them. Every line of the header is a ``%`` comment.
+literally one of them. Every line of the header is a ``%`` comment; catalogue text in it goes
+through :func:`gravicat.export.escape.latex_comment` (no line break survives, backslashes written as
+text), and the labels are built from the entry and chart slugs (``[a-z0-9-]`` only).
 """
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import ExportContext
+    from gravicat.format.metricfile import MetricDocument
 
 LINE_BUDGET = 110  # characters of LaTeX source per displayed line of the line element
 _OPS = {"<": "<", "<=": r"\leq", ">": ">", ">=": r"\geq"}
@@ -55,12 +63,14 @@ def _pack(terms: list[tuple[bool, str]]) -> list[str]:
 
 class LatexExporter:
     name = "latex"
-    version = "1"
+    version = "2"
     suffix = ".tex"
 
-    def export(self, document, context) -> str:
+    def export(self, document: MetricDocument, context: ExportContext) -> str:
+        from gravicat.checks import ExportContext
         from gravicat.export.codegen import DEFAULT_BUDGET, christoffel_symbols, prepare
 
+        context = ExportContext.coerce(context)
         prep = prepare(document, context, self, numeric=False)
         lay = prep.layered
         n = prep.n
@@ -116,13 +126,15 @@ class LatexExporter:
             tail.append(r"&\text{parameters: } " + r", \quad ".join(params))
         for i, line in enumerate(tail):
             rows.append(f"{line}{'.' if i == len(tail) - 1 else ','} \\nonumber")
-        header = prep.header_lines() + ["Requires \\usepackage{amsmath}."]
-        out = [f"% {line}".rstrip() for line in header]
+        from gravicat.export.escape import latex_comment
+
+        out = [f"% {latex_comment(line)}".rstrip() for line in prep.header_lines()]
+        out.append("% Requires \\usepackage{amsmath}.")
         newline = " \\\\"
         out += [r"\begin{align}", *(f"  {row}{newline if i < len(rows) - 1 else ''}" for i, row in enumerate(rows)),
                 r"\end{align}"]
-        if context.get("christoffel"):
-            out += self._christoffel(prep, float(context.get("budget") or DEFAULT_BUDGET), christoffel_symbols)
+        if context.christoffel:
+            out += self._christoffel(prep, float(context.budget or DEFAULT_BUDGET), christoffel_symbols)
         return "\n".join(out) + "\n"
 
     @staticmethod

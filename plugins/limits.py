@@ -10,8 +10,13 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
 from gravicat.physics.claims import MASS, RADIAL
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 def _filter_relations(rels):
@@ -103,7 +108,7 @@ class LimitsCheck:
     version = "2"
     screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         spec = geometry.spec
         out = []
         for lim in spec.limits:

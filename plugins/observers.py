@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 class ObserversCheck:
     name = "observers"
     version = "1"
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         from gravicat.plugins._common import from_outcome, result
 
         spec = geometry.spec

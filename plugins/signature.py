@@ -24,7 +24,12 @@ a failure.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 class SignatureCheck:
@@ -32,7 +37,7 @@ class SignatureCheck:
     version = "2"
     screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         from gravicat.engine.curvature import inertia
         from gravicat.physics.claims import lorentzian
         from gravicat.plugins._common import point_matrix, result, signature_text, zero_sets_note

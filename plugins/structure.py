@@ -14,7 +14,12 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 def _det_exact(rows):
@@ -40,8 +45,9 @@ def _det_exact(rows):
 class StructureCheck:
     name = "structure"
     version = "2"
+    screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         import sympy as sp
 
         from gravicat.plugins._common import result

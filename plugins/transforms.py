@@ -7,14 +7,19 @@ equal g_ab(x) exactly (sampled stage, then proof).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from gravicat import hookimpl
+
+if TYPE_CHECKING:
+    from gravicat.checks import CheckResult, PreparedChart
 
 
 class TransformsCheck:
     name = "transforms"
     version = "1"
 
-    def check(self, geometry):
+    def check(self, geometry: PreparedChart) -> list[CheckResult]:
         from gravicat.plugins._common import result
 
         spec = geometry.spec

@@ -383,7 +383,7 @@ def test_header_and_verification_status(exporter):
     text = exporter.export(doc, context("schwarzschild"))
     head = text[:1500]
     for needle in ("schwarzschild", "chart schwarzschild", doc.hash, "status:    pass", "2031-04-05",
-                   f"exporter {exporter.name} 1"):
+                   f"exporter {exporter.name} {exporter.version}"):
         assert needle in head, needle
     first = text.splitlines()[0]
     assert first.startswith(("#", "%", "/*"))
@@ -473,7 +473,7 @@ def test_header_signature_has_the_chart_dimension(exporter, tmp_path):
 def test_bad_parameters_are_one_line_errors(params, field, words):
     with pytest.raises(InputError) as err:
         PythonExporter().export(DOCS["kerr"], context("kerr", params=params))
-    assert err.value.source == "--params" and err.value.field == field and words in str(err.value)
+    assert err.value.source == "--set" and err.value.field == field and words in str(err.value)
 
 
 def test_parameter_expressions_go_through_the_whitelist():
@@ -481,7 +481,7 @@ def test_parameter_expressions_go_through_the_whitelist():
         PythonExporter().export(DOCS["kerr"], context("kerr", params="M=__import__('os')"))
     with pytest.raises(UnsafeExpression):
         PythonExporter().export(DOCS["kerr"], context("kerr", params="M=x"))
-    # "symbolic" keeps every parameter a runtime argument, like no --params at all
+    # "symbolic" keeps every parameter a runtime argument, like no --set at all
     assert PythonExporter().export(DOCS["kerr"], context("kerr", params="symbolic")) == \
         PythonExporter().export(DOCS["kerr"], context("kerr"))
     # pi and earlier values may be used; decimals are exact

@@ -37,7 +37,7 @@ def run(entry, **kw):
 def test_schwarzschild_circular_orbit_at_10M():
     M, r = 1.0, 10.0
     out = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="circular", orbits=5)
-    assert out["termination"] == "completed" and out["code"].startswith("exporter python 1")
+    assert out["termination"] == "completed" and out["code"].startswith("exporter python 2")
     c = out["circular"]
     # Bardeen, Press & Teukolsky (1972) with a = 0: u^t = 1/sqrt(1 - 3M/r), Omega = sqrt(M/r^3)
     assert c["u^t"] == pytest.approx(1 / math.sqrt(1 - 3 * M / r), rel=1e-13)
@@ -140,7 +140,7 @@ def test_bad_probe_input_is_one_line_error(entry, kw, field, words):
 
 def test_cli_probe_file_json(cli, python_target):
     path = SPACETIMES / "kerr.toml"
-    result = cli("probe", str(path), "--params", "M=1,a=0.9", "--from", "r=10,theta=pi/2", "--orbits", "3",
+    result = cli("probe", str(path), "--set", "M=1", "--set", "a=0.9", "--from", "r=10,theta=pi/2", "--orbits", "3",
                  "--json")
     assert result.exit_code == 0, result.stderr
     out = json.loads(result.stdout)
@@ -148,6 +148,14 @@ def test_cli_probe_file_json(cli, python_target):
                         "circular", "tau", "termination", "drift", "integrator", "energy", "angular_momentum"}
     assert out["metric"] == "kerr" and out["status"] == "unverified" and out["parameters"] == {"M": 1.0, "a": 0.9}
     assert out["circular"]["Omega"] == pytest.approx(1 / (10**1.5 + 0.9), rel=1e-12)
+
+
+def test_cli_probe_old_params_spelling_still_works(cli, python_target):
+    path = SPACETIMES / "kerr.toml"
+    result = cli("probe", str(path), "--params", "M=1,a=0.9", "--from", "r=10,theta=pi/2", "--orbits", "1", "--json")
+    assert result.exit_code == 0, result.stderr
+    assert json.loads(result.stdout)["parameters"] == {"M": 1.0, "a": 0.9}
+    assert "deprecated" in result.stderr
 
 
 def test_cli_probe_entry_text_and_errors(empty_catalogue, python_target):

@@ -1,6 +1,7 @@
 """`gravicat export`: hand a stored metric (or a metric file) to other programs through exporter plugins.
 
-The export context the code exporters receive is documented in catalog/export/codegen.py.
+Exporters receive a :class:`gravicat.checks.ExportContext`; ``-o PATH`` writes through a safely created
+temporary file in PATH's directory (:func:`write_atomically`).
 """
 
 from __future__ import annotations
@@ -11,6 +12,7 @@ from typing import Annotated
 
 import typer
 
+from gravicat.checks import ExportContext
 from gravicat.cli._base import AppContext, app_context, deprecated, merge_set_options, open_subject, reports_errors
 from gravicat.errors import CatalogError, InputError, NotFound
 
@@ -95,22 +97,60 @@ def export(
     if found.is_file:
         path = found.ref.path
         stored = _catalogue_checks(app_ctx, doc)
-        context = {"revision": doc.hash, "checks": stored[1] if stored else [],
-                   "source": f"{path}" + (" (identical to the catalogue revision)" if stored else
-                                          " (not in the catalogue: no stored checks)")}
+        revision, checks = doc.hash, (stored[1] if stored else [])
+        source = f"{path}" + (" (identical to the catalogue revision)" if stored else
+                              " (not in the catalogue: no stored checks)")
     else:
-        context = {"revision": found.revision_hash, "checks": found.checks,
-                   "source": f"catalogue entry {found.ref.entry}, revision {found.revision_number}"}
-    context.update({"chart": chart, "params": params, "allow_unverified": allow_unverified,
-                    "christoffel": christoffel, "budget": budget})
+        revision, checks = found.revision_hash, found.checks
+        source = f"catalogue entry {found.ref.entry}, revision {found.revision_number}"
+    context = ExportContext(revision=revision, checks=tuple(checks), source=source, chart=chart, params=params,
+                            allow_unverified=allow_unverified, christoffel=christoffel, budget=budget)
     text = targets[to].export(doc, context)
     if output is None:
         typer.echo(text, nl=False)
         return
+    write_atomically(output, text)
+    typer.echo(f"wrote {output}", err=True)
+
+
+def write_atomically(output: Path, text: str) -> None:
+    """Write ``text`` to ``output`` whole or not at all.
+
+    The text goes to a new temporary file in the target's directory, created with O_CREAT | O_EXCL under
+    a random name (``tempfile.mkstemp``: an existing file or a planted symlink is never opened, let
+    alone followed), then renamed over ``output`` (a symlink at ``output`` itself is replaced, not
+    followed). On any failure the temporary file is removed and ``output`` is left as it was. The new
+    file gets the mode of the file it replaces, else the usual mode under the umask.
+    """
+    import contextlib
+    import os
+    import stat
+    import tempfile
+
+    directory = output.parent
     try:
-        tmp = output.with_name(output.name + ".part")
-        tmp.write_text(text, encoding="utf-8")
-        tmp.replace(output)
+        mode = stat.S_IMODE(os.lstat(output).st_mode) if output.is_file() and not output.is_symlink() else None
+        fd, tmp = tempfile.mkstemp(dir=directory, prefix=f".{output.name}.", suffix=".part")
     except OSError as exc:
         raise InputError(str(output), None, f"cannot write ({exc.strerror or exc})") from None
-    typer.echo(f"wrote {output}", err=True)
+    try:
+        if mode is None:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.fchmod(fd, mode)
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fd = -1
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, output)
+    except BaseException as exc:
+        if fd >= 0:
+            with contextlib.suppress(OSError):
+                os.close(fd)
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        if isinstance(exc, OSError):
+            raise InputError(str(output), None, f"cannot write ({exc.strerror or exc})") from None
+        raise

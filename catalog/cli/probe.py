@@ -6,6 +6,7 @@ from typing import Annotated
 
 import typer
 
+from gravicat.checks import ExportContext
 from gravicat.cli._base import AppContext, app_context, merge_set_options, open_subject, reports_errors
 from gravicat.cli._output import emit_json, emit_table
 from gravicat.errors import CheckFailed, NotFound
@@ -18,9 +19,9 @@ def subject_with_checks(app_ctx: AppContext, arg: str, chart: str | None = None)
     entry (its stored checks), named by the one subject syntax."""
     found = open_subject(app_ctx, arg, chart=chart)
     if found.is_file:
-        context = {"revision": found.document.hash, "checks": [], "source": str(found.ref.path)}
+        context = ExportContext(revision=found.document.hash, source=str(found.ref.path))
     else:
-        context = {"revision": found.revision_hash, "checks": found.checks, "source": "catalogue"}
+        context = ExportContext(revision=found.revision_hash, checks=tuple(found.checks), source="catalogue")
     return found.document, found.chart, context
 
 

@@ -402,6 +402,11 @@ class Geometry(_Curvature):
             self.field.deadline = old
 
     # -- sampling ------------------------------------------------------------
+    @property
+    def sampler(self):
+        """The generic sample-point generator of this chart (public name of the cached sampler)."""
+        return self._sampler
+
     @cached_property
     def _sampler(self):
         angle_q = {}

@@ -5,7 +5,7 @@ does the rest, so every target says the same thing about where a file came
 from and refuses the same things:
 
 * :func:`~gravicat.format.assign.parse_assignments` (re-exported here) reads ``NAME=EXPR,NAME=EXPR``
-  option text (``--params M=1,a=0.9``, ``--from r=10,theta=pi/2``) through the whitelist parser;
+  option text (``--set M=1,a=0.9``, ``--from r=10,theta=pi/2``) through the whitelist parser;
 * :func:`fixed_parameters` turns the ``params`` of an export context into exact
   values, checked against the declared assumptions and ranges;
 * :class:`Provenance` is the header of every generated file (entry, chart,
@@ -17,20 +17,10 @@ from and refuses the same things:
   when the metric splits into blocks of size one or two (else the generated
   code inverts numerically), with :func:`cse` to share subexpressions.
 
-Export context (the dict every exporter receives; the CLI fills it):
-
-``revision``          content hash of the exported revision (required)
-``checks``            stored result dicts of that revision (may be empty)
-``status``            optional overall status; default: the worst of ``checks``,
-                      ``"unverified"`` when there are none
-``chart``             chart name (default: the first chart)
-``params``            None or ``"symbolic"`` (keep every parameter), an option string
-                      ``"M=1,a=9/10"``, or a mapping name -> value (number or expression text)
-``allow_unverified``  bool: export a failed or unverified revision (the header says so)
-``date``              ISO date for the header (default: today, UTC)
-``source``            where the document came from (file path or ``catalogue``), optional
-``christoffel``       bool (latex only): also list the nonzero Christoffel symbols
-``budget``            seconds for that symbolic computation (latex only, default 60)
+The export context every exporter receives is a :class:`gravicat.checks.ExportContext` (frozen;
+fields: revision, checks, status, chart, params, allow_unverified, date, source, christoffel,
+budget; documented there). A mapping with those keys is still accepted (:meth:`ExportContext.coerce`).
+Catalogue text reaches generated code only through :mod:`gravicat.export.escape`.
 
 Imports stay light at module level: sympy is imported inside the functions.
 """
@@ -42,6 +32,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from gravicat.checks import ExportContext
 from gravicat.errors import CatalogError, CheckFailed, InputError
 from gravicat.export.numeric import (  # noqa: F401  (re-exported: the exporters import them from here)
     NumericParts,
@@ -145,27 +136,26 @@ class Provenance:
         return out
 
 
-def provenance(document, context: Mapping[str, Any], exporter, chart: str) -> Provenance:
+def provenance(document, context: ExportContext | Mapping[str, Any], exporter, chart: str) -> Provenance:
     """The header data of an export (raises nothing; call :meth:`Provenance.require_verified`)."""
     from gravicat import __version__
 
-    if "revision" not in context:
-        raise CatalogError("export context without 'revision' (a bug in the caller)")
-    checks = list(context.get("checks") or [])
-    status = context.get("status") or _worst(c["status"] for c in checks)
+    context = ExportContext.coerce(context)
+    checks = list(context.checks)
+    status = context.status or _worst(c["status"] for c in checks)
     chart_checks = [c["status"] for c in checks if c.get("chart") in (None, chart)]
     counts: dict[str, int] = {}
     for c in checks:
         counts[c["status"]] = counts.get(c["status"], 0) + 1
     problems = [f"{c.get('chart', '?')}/{c['check']}: {c['status']}" for c in checks
                 if c["status"] not in ("pass", "skipped")]
-    date = context.get("date") or _dt.datetime.now(_dt.UTC).date().isoformat()
+    date = context.date or _dt.datetime.now(_dt.UTC).date().isoformat()
     return Provenance(
-        entry=document.id, title=document.title, chart=chart, revision=str(context["revision"]),
+        entry=document.id, title=document.title, chart=chart, revision=context.revision,
         status=status, chart_status=_worst(chart_checks) if checks else "unverified", counts=counts,
         problems=problems, date=str(date), generator=f"gravicat {__version__}, exporter {exporter.name} "
                                                       f"{exporter.version}",
-        allowed_unverified=bool(context.get("allow_unverified")), source=context.get("source"),
+        allowed_unverified=bool(context.allow_unverified), source=context.source,
     )
 
 
@@ -216,25 +206,32 @@ class Prepared:
         return lines
 
 
-def chart_name(document, context: Mapping[str, Any]) -> str:
+def chart_name(document, chart: str | ExportContext | Mapping[str, Any] | None) -> str:
+    """The chart to use: ``chart`` (a name, or the ``chart`` of a context), else the first chart."""
     from gravicat.errors import NotFound
 
-    chart = context.get("chart") or document.chart_names[0]
+    if isinstance(chart, ExportContext):
+        chart = chart.chart
+    elif isinstance(chart, Mapping):
+        chart = chart.get("chart")
+    chart = chart or document.chart_names[0]
     if chart not in document.chart_names:
         raise NotFound(f"{document.id}: no chart '{chart}' (charts: {', '.join(document.chart_names)})")
     return chart
 
 
-def prepare(document, context: Mapping[str, Any], exporter, *, numeric: bool) -> Prepared:
+def prepare(document, context: ExportContext | Mapping[str, Any], exporter, *, numeric: bool) -> Prepared:
     """Build the chart, check the status, substitute the fixed parameters.
 
     ``numeric`` targets refuse charts with arbitrary functions (their values are not known).
+    A domain relation that the fixed values make true is dropped; one they make false is refused.
     """
     import sympy
 
     from gravicat.format.metricfile import build_chart
 
-    chart = chart_name(document, context)
+    context = ExportContext.coerce(context)
+    chart = chart_name(document, context.chart)
     prov = provenance(document, context, exporter, chart)
     prov.require_verified()
     spec = build_chart(document, chart)
@@ -243,16 +240,20 @@ def prepare(document, context: Mapping[str, Any], exporter, *, numeric: bool) ->
         raise InputError(document.source, f"charts.{chart}.functions",
                          f"the metric depends on the arbitrary function(s) {names}, whose values numeric code "
                          f"cannot know; export to latex or json instead")
-    fixed = fixed_parameters(document, spec, context.get("params"))
+    fixed = fixed_parameters(document, spec, context.params)
     free = tuple(p for p in spec.params if p not in fixed)
     metric = spec.metric.xreplace(fixed) if fixed else spec.metric
     domain = []
-    for rel in spec.domain:
-        rel = rel.xreplace(fixed) if fixed else rel
-        if rel is sympy.true:
+    for spec_rel in spec.domain:
+        rel = spec_rel.xreplace(fixed) if fixed else spec_rel
+        if rel == sympy.true:  # e.g. Lambda*r**2 < 3 at Lambda = -1/100: holds everywhere
             continue
-        if rel is sympy.false:
-            raise InputError("--params", None, f"with these values the domain of chart {chart} is empty")
+        if rel == sympy.false:
+            raise InputError("--set", None, f"with these values the domain relation {sympy.sstr(spec_rel)} of "
+                                            f"chart {chart} holds nowhere: the chart is empty")
+        if not isinstance(rel, sympy.core.relational.Relational):
+            raise InputError("--set", None, f"with these values the domain relation {sympy.sstr(spec_rel)} of "
+                                            f"chart {chart} is not an inequality ({sympy.sstr(rel)})")
         domain.append(rel)
     return Prepared(doc=document, spec=spec, layered=layered_chart(document, chart).substituted(fixed), chart=chart,
                     coords=tuple(spec.coords), free=free, fixed=fixed, metric=sympy.ImmutableMatrix(metric),

@@ -30,7 +30,7 @@ _ASSUME = {
 }
 
 
-def fixed_parameters(doc, spec, params, option: str = "--params") -> dict[Any, Any]:
+def fixed_parameters(doc, spec, params, option: str = "--set") -> dict[Any, Any]:
     """The parameter values to substitute: symbol -> exact number (empty for symbolic export).
 
     ``params`` is None, ``"symbolic"``, option text ``"M=1,a=9/10"`` or a mapping name -> value.
@@ -83,7 +83,7 @@ def check_parameter_values(doc, spec, values: Mapping[str, Any], option: str) ->
                 raise InputError(option, culprit, f"{shown} is outside the range {text} of {pname}")
 
 
-def numeric_parameters(doc, spec, params, option: str = "--params") -> dict[Any, Any]:
+def numeric_parameters(doc, spec, params, option: str = "--set") -> dict[Any, Any]:
     """Every parameter as a number: the given values, else the file's defaults (for the probe)."""
     fixed = fixed_parameters(doc, spec, params, option)
     out = {}

@@ -1,8 +1,9 @@
 """Geodesic probe: integrate a timelike geodesic with the exported Python code and measure drift.
 
-What a simulation relies on, measured on the exported code itself: the probe asks the
-``python`` export target for the chart's module (the very text ``gravicat export --to python``
-writes), loads it, and integrates
+What a simulation relies on, measured on the exported code itself: the probe loads the functions
+``gravicat export --to python`` writes for the chart (the same generated code, compiled without the
+file's header, docstring and data text, so no catalogue text is ever executed: see
+:func:`exported_module`), and integrates
 
     dx^a/dtau = u^a,    du^a/dtau = -Gamma^a_bc u^b u^c
 
@@ -33,10 +34,10 @@ from __future__ import annotations
 
 import math
 import time
-import types
 from collections.abc import Mapping
 from typing import Any
 
+from gravicat.checks import ExportContext
 from gravicat.errors import InputError
 
 ORBITS = ("circular", "radial", "custom")
@@ -83,15 +84,21 @@ class _Caps:
 _MODULES: dict = {}
 
 
-def exported_module(document, exporter, context: Mapping[str, Any]):
-    """The module the python exporter writes for this chart, loaded (cached per revision and chart)."""
-    key = (document.hash, context.get("chart"), exporter.name, exporter.version)
+def exported_module(document, exporter, context: ExportContext | Mapping[str, Any]):
+    """The functions of the ``python`` export of this chart as a module (cached per revision and chart).
+
+    No exported text is executed: the code comes from :func:`gravicat.export.python_code.build`, the
+    generator the ``python`` exporter writes its functions with, and :func:`gravicat.export.python_code.load`
+    compiles only that function code (printed from sympy expressions, identifiers checked) and sets the
+    data (entry, title, coordinates, domain...) as values. No title, note, range or other catalogue text is
+    ever compiled, so a hostile entry cannot run code here. ``exporter`` is recorded for provenance."""
+    from gravicat.export.python_code import build, load
+
+    context = ExportContext.coerce(context)
+    key = (document.hash, context.chart, exporter.name, exporter.version)
     if key not in _MODULES:
-        text = exporter.export(document, {**context, "params": None, "allow_unverified": True})
-        module = types.ModuleType(f"gravicat_probe_{document.id.replace('-', '_')}")
-        # the text is what the installed exporter generated from whitelist-parsed expressions
-        exec(compile(text, f"<gravicat export {document.id}:{context.get('chart')}>", "exec"),  # noqa: S102
-             module.__dict__)
+        built = build(document, context.replace(params=None, allow_unverified=True), exporter)
+        module = load(built, f"gravicat_probe_{document.id.replace('-', '_')}")
         if len(_MODULES) > 16:
             _MODULES.clear()
         _MODULES[key] = module
@@ -112,7 +119,7 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
           direction: str = "prograde", velocity: str | None = None, azimuth: str | None = None,
           tau: float | None = None, orbits: float | None = None, rtol: float = 1e-12, atol: float = 1e-12,
           max_steps: int = MAX_STEPS, max_cpu: float = MAX_CPU,
-          context: Mapping[str, Any] | None = None, params_option: str = "--set") -> dict[str, Any]:
+          context: ExportContext | Mapping[str, Any] | None = None, params_option: str = "--set") -> dict[str, Any]:
     """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``).
 
     The integration stops at the edge of the chart's domain, on approach to a horizon of the time coordinate
@@ -141,9 +148,9 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         raise InputError("--max-steps", None, f"{max_steps} is not a positive number of steps")
     if not (max_cpu > 0 and math.isfinite(max_cpu)):
         raise InputError("--max-cpu", None, f"{max_cpu} is not a positive number of CPU seconds")
-    context = dict(context or {"revision": document.hash, "checks": []})
-    chart = chart_name(document, {"chart": chart})
-    context["chart"] = chart
+    context = ExportContext.coerce(context or ExportContext(revision=document.hash))
+    chart = chart_name(document, chart)
+    context = context.replace(chart=chart)
     spec = build_chart(document, chart)
     if spec.functions:
         raise InputError(document.source, f"charts.{chart}.functions",
