@@ -20,6 +20,13 @@ def make_plugin_manager(*, autoload: bool = True, extra: Iterable[object] = (),
     """
     pm = pluggy.PluginManager(hookspecs.PROJECT)
     pm.add_hookspecs(hookspecs)
+    blocked = list(blocked)
+    if blocked and autoload:  # a misspelt name would block nothing, silently (issue 14 item 12)
+        known = _entry_point_names()
+        unknown = [name for name in blocked if name not in known]
+        if unknown:
+            raise PluginError(f"--disable-plugin: no plugin named {', '.join(repr(n) for n in unknown)} "
+                              f"(known: {', '.join(sorted(known))})")
     for name in blocked:
         pm.set_blocked(name)
     if autoload:
@@ -34,6 +41,13 @@ def make_plugin_manager(*, autoload: bool = True, extra: Iterable[object] = (),
     except pluggy.PluginValidationError as exc:
         raise PluginError(f"plugin {exc.plugin!r} implements an unknown hook: {exc}") from None
     return pm
+
+
+def _entry_point_names() -> set[str]:
+    """Names of the plugins in the ``gravicat`` entry-point group (what ``--disable-plugin`` takes)."""
+    from importlib.metadata import entry_points
+
+    return {ep.name for ep in entry_points(group=hookspecs.PROJECT)}
 
 
 def _collect(pm: pluggy.PluginManager, hook_name: str, kind: str) -> dict[str, object]:

@@ -135,3 +135,14 @@ def test_like_wildcards_in_a_revision_are_literal(empty_catalogue, pattern):
         assert r.exit_code == 2, r.output
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and lines[0].startswith("Error: halcyon-rindler"), lines
+
+
+def test_disabling_an_unknown_plugin_is_an_error_naming_the_known_ones():
+    """Issue 14 item 12: '--disable-plugin nope' was silently accepted."""
+    from gravicat.errors import PluginError
+    from gravicat.registry import make_plugin_manager
+
+    with pytest.raises(PluginError) as info:
+        make_plugin_manager(blocked=["nope"])
+    assert "no plugin named 'nope'" in str(info.value) and "latex-export" in str(info.value)
+    assert dict(make_plugin_manager(blocked=["latex-export"]).list_name_plugin())["latex-export"] is None
