@@ -137,6 +137,20 @@ def compute_entry(e: dict[str, Any], exporters: dict[str, Any]) -> dict[str, Any
     return out
 
 
+def _preload() -> None:
+    """Import what every child needs once, in the parent, so each forked child inherits it."""
+    import sympy  # noqa: F401
+
+    import gravicat.format.charts  # noqa: F401
+    import gravicat.physics.orbits  # noqa: F401
+
+    try:
+        import matplotlib.backends.backend_svg  # noqa: F401
+        import matplotlib.figure  # noqa: F401
+    except ImportError:  # no figure then: orbit_section says so on the page
+        pass
+
+
 def _render(e: dict[str, Any], computed: dict[str, Any], present: set[str]) -> dict[str, bytes]:
     from gravicat.api.site.pages import entry_html, entry_page, safe_name
     from gravicat.format.metricfile import canonical_json
@@ -233,6 +247,8 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
             tasks.append(lambda emit, e=e: compute_entry(e, exporters))
             sources.append(e)
         owner.append(memo[ck])
+    if tasks:
+        _preload()
     outcomes = run_many(tasks, jobs=max(1, jobs), cpu_seconds=cpu_seconds) if tasks else []
     new_entries: dict[str, Any] = {}
     new_files: dict[str, str] = {}

@@ -109,6 +109,10 @@ def orbit_section(doc) -> dict[str, Any]:
             continue
         try:
             svg = potential_svg(model, report)
+        except ImportError:
+            svg = None
+            report.setdefault("notes", []).append("no figure: matplotlib is not installed "
+                                                  "(pip install 'gravicat[plot]')")
         except (CatalogError, ArithmeticError, ValueError) as exc:
             svg = None
             report.setdefault("notes", []).append(f"no figure: {exc}")
