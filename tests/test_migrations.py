@@ -74,7 +74,7 @@ def test_newer_schema_is_refused(db_url):
     db.ensure_schema(engine, may_upgrade=True, may_create=True)
     with engine.begin() as conn:
         conn.exec_driver_sql("UPDATE alembic_version SET version_num = '9999'")
-    with pytest.raises(SchemaOutdated, match="newer than this gravicat"):
+    with pytest.raises(SchemaOutdated, match="written by another version of gravicat"):
         db.ensure_schema(engine, may_upgrade=True)
 
 
@@ -129,5 +129,25 @@ def test_upgrade_dropping_the_job_table_keeps_every_other_table(any_url):  # noq
             again = store.revision(session, "halcyon-rindler")
             assert again.hash == rev.hash
             assert [(r.check, r.detail) for r in store.results_for(session, again)] == [("structure", "kept")]
+    finally:
+        engine.dispose()
+
+
+@pytest.mark.parametrize("stamp", ["0000", "00035", "0003a", "zzzz", "9999"])
+def test_an_unknown_schema_revision_is_one_line_whatever_it_sorts_as(db_url, stamp):
+    """Issue 14 item 7: '0000' and '00035' sort below the head as strings but are no revision of this
+    gravicat; every unknown revision gets the one-line 'another version' message, not an Alembic traceback."""
+    from sqlalchemy import text
+
+    engine = db.make_engine(db_url)
+    try:
+        db.ensure_schema(engine, may_upgrade=True, may_create=True)
+        with engine.begin() as conn:
+            conn.execute(text("UPDATE alembic_version SET version_num = :v"), {"v": stamp})
+        with pytest.raises(SchemaOutdated) as info:
+            db.ensure_schema(engine, may_upgrade=True)
+        message = str(info.value)
+        assert "\n" not in message and "written by another version of gravicat" in message
+        assert db.known_revisions()[-1] == db.SCHEMA_HEAD
     finally:
         engine.dispose()

@@ -123,6 +123,15 @@ def upgrade(engine: Engine, target: str = "head") -> None:
         raise _operational(engine.url.render_as_string(hide_password=False), exc) from None
 
 
+def known_revisions() -> list[str]:
+    """The schema revisions of this gravicat in chain order (the ``NNNN_`` prefix of each migration
+    file; read from the package without importing Alembic)."""
+    folder = files("gravicat.migrations").joinpath("versions")
+    ids = [p.name.split("_", 1)[0] for p in folder.iterdir()
+           if p.name.endswith(".py") and p.name[:4].isdigit() and "_" in p.name]
+    return sorted(ids, key=int)
+
+
 def ensure_schema(engine: Engine, *, may_upgrade: bool, may_create: bool = False) -> None:
     """Make sure the schema is at :data:`SCHEMA_HEAD`.
 
@@ -135,9 +144,13 @@ def ensure_schema(engine: Engine, *, may_upgrade: bool, may_create: bool = False
     url = safe_url(engine.url.render_as_string(hide_password=False))
     if found is None and not may_create:
         raise DatabaseError(f"--db {url}: no catalogue here yet; run 'gravicat --db {url} init' first")
-    if found is not None and found > SCHEMA_HEAD:
-        raise SchemaOutdated(f"--db {url}: schema {found} is newer than this gravicat ({SCHEMA_HEAD}); "
-                             "upgrade gravicat")
+    chain = known_revisions()
+    # revisions are compared by their place in the migration chain, never as strings (issue 14 item 7)
+    if found is not None and (found not in chain or chain.index(found) > chain.index(SCHEMA_HEAD)):
+        shown = str(found)[:40].encode("unicode_escape").decode("ascii")
+        raise SchemaOutdated(f"--db {url}: schema '{shown}' is not one this gravicat knows ({', '.join(chain)}): "
+                             "this catalogue was written by another version of gravicat; use that version "
+                             "or upgrade gravicat")
     if found is not None and not may_upgrade:
         raise SchemaOutdated(f"--db {url}: schema {found}, this version needs {SCHEMA_HEAD}; "
                              f"run 'gravicat --db {url} init' to upgrade it")
