@@ -117,20 +117,20 @@ def test_map_may_use_the_second_charts_own_parameter_names(tmp_path):
     a = write(tmp_path, "a.toml", SCHWARZSCHILD)
     b = write(tmp_path, "b.toml", ISOTROPIC_M)
     assert "M" not in ISOTROPIC_M.split("[charts.iso]")[1]
-    # B's m, identified with A's M by --match: the map is written in B's own symbols
-    out = verdict_of(a, b, "--match", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    # B's m, identified with A's M by --set: the map is written in B's own symbols
+    out = verdict_of(a, b, "--set", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
     assert out["verdict"] == "equivalent", out["summary"]
     proof = out["evidence"][0]
     assert proof["kind"] == "map" and proof["result"] == "proved"
     assert S(proof["map"]["r"]).equals(sp.Symbol("R") * (1 + M / (2 * sp.Symbol("R"))) ** 2)
     # the same in A's symbol, and a map that states the identification the wrong way round is refuted
-    assert verdict_of(a, b, "--match", "m=M", "--map", "r=R*(1 + M/(2*R))**2", "--no-search")["verdict"] \
+    assert verdict_of(a, b, "--set", "m=M", "--map", "r=R*(1 + M/(2*R))**2", "--no-search")["verdict"] \
         == "equivalent"
-    wrong = verdict_of(a, b, "--match", "m=2*M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    wrong = verdict_of(a, b, "--set", "m=2*M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
     assert wrong["verdict"] != "equivalent"
     assert wrong["evidence"][0]["kind"] == "map" and wrong["evidence"][0]["result"] == "failed"
     # B's coordinates written in terms of A's, with A's M and B's m both accepted
-    back = verdict_of(b, a, "--match", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
+    back = verdict_of(b, a, "--set", "m=M", "--map", "r=R*(1 + m/(2*R))**2", "--no-search")
     assert back["verdict"] == "equivalent" and back["map"]["direction"] == "B coordinates in terms of A coordinates"
 
 
@@ -175,7 +175,7 @@ def test_the_map_is_found_from_the_kretschmann_scalar(tmp_path):
 def test_kerr_with_zero_spin_is_schwarzschild():
     # Kerr (1963) in Boyer-Lindquist form with a = 0 is the Schwarzschild metric (Carroll, Spacetime
     # and Geometry (2004), section 6.6)
-    out = verdict_of(str(BUNDLED["kerr"]), str(BUNDLED["schwarzschild"]), "--match", "a=0")
+    out = verdict_of(str(BUNDLED["kerr"]), str(BUNDLED["schwarzschild"]), "--set", "a=0")
     assert out["verdict"] == "identical"
     assert out["match"] == {"A.a": "0"}
     assert "a = 0" in out["summary"]
@@ -232,15 +232,16 @@ line-element = "-dt**2 + exp(2*sqrt(Lambda/3)*t)*(dx**2 + dy**2 + dz**2)"
     assert "Weinberg" in proof["source"]
     assert out["b"]["symmetries"]["coordinates"] == ["x", "y", "z"]
 
-    # the same spacetime with the constant named L: without --match nothing that depends on how
+    # the same spacetime with the constant named L: without --set nothing that depends on how
     # the parameters are identified is used; with it, equivalent again
     renamed = write(tmp_path, "renamed.toml", Path(flat).read_text().replace("Lambda", "L"))
     loose = verdict_of(static, renamed)
     assert loose["verdict"] == "undecided"
     assert any(e["kind"] == "parameters" and e["result"] == "skipped" for e in loose["evidence"])
+    # the old spelling --match still works (a hidden alias of --set with a deprecation note)
     assert verdict_of(static, renamed, "--match", "L=Lambda")["verdict"] == "equivalent"
     # and with a different cosmological constant, not equivalent (R = 4 Lambda versus 8 Lambda)
-    other = verdict_of(static, renamed, "--match", "L=2*Lambda")
+    other = verdict_of(static, renamed, "--set", "L=2*Lambda")
     assert other["verdict"] == "not-equivalent"
     assert [e for e in other["evidence"] if e["result"] == "disproved"][0]["kind"] == "invariant-constant"
     # anti-de Sitter (the same formula with Lambda < 0) is never de Sitter: R = 4 Lambda changes sign, so
@@ -314,11 +315,11 @@ def test_compare_entries_from_the_catalogue(empty_catalogue, db_url):
 
 
 @pytest.mark.parametrize("args, where", [
-    (("--match", "q=0"), "--match: q: not a parameter"),
-    (("--match", "a=2*M"), "outside its range"),
-    (("--match", "a"), "--match: 'a' is not NAME=VALUE"),
-    (("--match", "a=0,a=0"), "--match: a: given more than once"),
-    (("--match", "a=0", "--match", "a=0"), "--match: a: given more than once"),
+    (("--set", "q=0"), "--set: q: not a parameter"),
+    (("--set", "a=2*M"), "outside its range"),
+    (("--set", "a"), "--set: 'a' is not NAME=VALUE"),
+    (("--set", "a=0,a=0"), "--set: a: given more than once"),
+    (("--set", "a=0", "--set", "a=0"), "--set: a: given more than once"),
     (("--map", "r"), "--map: 'r' is not NAME=VALUE"),
     (("--map", "r=__import__('os')"), "--map"),
     (("--map", "r=r*foo"), "foo"),

@@ -151,3 +151,13 @@ def test_cli_bad_cap_is_exit_2_with_one_line(cli, python_target, cap):
     assert result.exit_code == 2, result.stderr
     assert result.stderr.count("\n") == 1 and result.stderr.startswith("Error: ") and cap[0] in result.stderr
     assert "Traceback" not in result.stderr
+
+
+@pytest.mark.parametrize("ask", [("--tau", "1e308"), ("--orbits", "1000000000")])
+def test_cli_huge_tau_or_orbit_count_ends_at_the_cap(cli, python_target, ask):
+    """Issue: --tau 1e308 or --orbits 1e9 must never run unbounded; they end at the step cap (exit 1,
+    the report, then one line saying the integration is unfinished)."""
+    result = cli("probe", str(SPACETIMES / "schwarzschild.toml"), "--from", "r=10,theta=pi/2", *ask,
+                 "--max-steps", "50")
+    assert result.exit_code == 1, result.stderr
+    assert result.stderr.count("\n") == 1 and "unfinished" in result.stderr and "step cap of 50" in result.stderr

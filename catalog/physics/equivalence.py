@@ -152,7 +152,7 @@ def _decide(sa: _Side, sb: _Side, free_a, free_b, evidence: list[Evidence], budg
     both_free = bool(free_a) and bool(free_b)
     if both_free:
         original = {str(p) for p in sb.spec0.params}
-        hint = (f" (give --match, e.g. --match {free_b[0]}={free_a[0]})" if str(free_b[0]) in original else "")
+        hint = (f" (give --set, e.g. --set {free_b[0]}={free_a[0]})" if str(free_b[0]) in original else "")
         evidence.append(Evidence("parameters", "skipped",
                                  f"parameters not identified: {', '.join(map(str, free_a))} (A) and "
                                  f"{', '.join(map(str, free_b))} (B); evidence that depends on how they are "

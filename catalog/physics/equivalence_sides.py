@@ -172,7 +172,7 @@ def _relations_after(rels, sub, option_items: str, who: str):
         if new is sp.true or new == sp.true:
             continue
         if new is sp.false or new == sp.false:
-            raise InputError("--match", None, f"{option_items} puts {who} outside its range '{rel}'")
+            raise InputError("--set", None, f"{option_items} puts {who} outside its range '{rel}'")
         out.append(new)
     return tuple(out)
 
@@ -192,16 +192,16 @@ def _unify(a: _Side, b: _Side, match: Sequence[str]):
     shown: dict[str, str] = {}
     from gravicat.format.assign import parse_assignments
 
-    pairs = _assignments(match, "--match")
+    pairs = _assignments(match, "--set")
     for name, _text in pairs:
         if name not in pb and name not in pa:
-            raise InputError("--match", name, f"not a parameter of A ({', '.join(pa) or 'none'}) "
+            raise InputError("--set", name, f"not a parameter of A ({', '.join(pa) or 'none'}) "
                                               f"or B ({', '.join(pb) or 'none'})")
     # B's parameters in terms of A's, and A's (named only by A) in terms of B's: each value is an
     # expression in the other side's parameters, read by the one NAME=VALUE parser
-    to_b = parse_assignments([f"{n}={t}" for n, t in pairs if n in pb], "--match", allowed=pb, env=pa,
+    to_b = parse_assignments([f"{n}={t}" for n, t in pairs if n in pb], "--set", allowed=pb, env=pa,
                              kind="parameter of B", numbers=False, chained=False)
-    to_a = parse_assignments([f"{n}={t}" for n, t in pairs if n not in pb], "--match", allowed=pa, env=pb,
+    to_a = parse_assignments([f"{n}={t}" for n, t in pairs if n not in pb], "--set", allowed=pa, env=pb,
                              kind="parameter of A", numbers=False, chained=False)
     for name, _text in pairs:
         if name in to_b:
