@@ -55,6 +55,11 @@ with ``d rho = rho dP / (q P)``. An identity that reduces to zero holds for ever
 roots, the real ones included; a sample point where a base is not positive is not used. Other
 rational powers (of a base with square roots, or ``q > 5``) stay generators without a relation.
 
+Powers the region lets us write one way (:func:`~gravicat.engine.rewrite.merge_powers`, before
+conversion): ``(c**k)**x = c**(k x)`` for rational ``k``, ``x`` where ``c > 0`` on the region
+(``(r**(3/2))**(2/3) = r``, ``sqrt(1/r) = r**(-1/2)``), and the base of a power with a symbolic
+exponent brought to one canonical quotient, so one rational base written two ways is one generator.
+
 Signs the region decides (:func:`settle_signs`): ``Abs``, ``sign``, ``Heaviside`` and
 ``DiracDelta`` whose argument has one sign on the chart's domain and parameter ranges are replaced
 before conversion (``sqrt(r**2) = Abs(r) = r`` where ``r > 0``).
