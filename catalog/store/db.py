@@ -35,6 +35,16 @@ def safe_url(url: str) -> str:
         return "<unparseable database URL>"
 
 
+def redacted(text: str) -> str:
+    """``text`` (a URL that may not parse) with anything between ``:`` and ``@`` hidden, and cut to
+    200 characters: a password is never printed (issue 14 item 10)."""
+    import re
+
+    text = re.sub(r"(?<=:)[^:@/]*(?=@)", "***", text)
+    text = re.sub(r"^[^:/@]*(?=@)", "***", text) if "://" not in text else text
+    return text if len(text) <= 200 else text[:197] + "..."
+
+
 def make_engine(url: str) -> Engine:
     """An engine for ``url``; SQLite gets foreign keys, WAL and a busy timeout."""
     from sqlalchemy import create_engine, event
@@ -43,15 +53,21 @@ def make_engine(url: str) -> Engine:
 
     try:
         parsed = make_url(url)
-    except ArgumentError:
-        raise DatabaseError(f"--db: '{url}' is not a database URL (expected e.g. sqlite:///path/catalogue.sqlite "
-                            "or postgresql+psycopg://user@host/dbname)") from None
+        parsed.port  # noqa: B018 - a port that is not a number fails here, not later
+    except (ArgumentError, ValueError, TypeError):
+        raise DatabaseError(f"--db: '{redacted(url)}' is not a database URL (expected e.g. "
+                            "sqlite:///path/catalogue.sqlite or postgresql+psycopg://user@host/dbname)") from None
     kwargs = {}
     if parsed.get_backend_name() == "sqlite":
         database = parsed.database
         if database and database != ":memory:" and not database.startswith("file:"):
-            folder = Path(database).expanduser().resolve().parent
-            if not folder.is_dir():
+            try:
+                folder = Path(database).expanduser().resolve().parent
+                folder_exists = folder.is_dir()
+            except (OSError, ValueError) as exc:  # a name too long, a NUL in it (issue 14 item 10)
+                reason = getattr(exc, "strerror", None) or type(exc).__name__
+                raise DatabaseError(f"--db {safe_url(url)[:200]}: not a usable file name ({reason})") from None
+            if not folder_exists:
                 if url == default_url():
                     folder.mkdir(parents=True, exist_ok=True)
                 else:
