@@ -598,3 +598,28 @@ def test_latex_line_element_uses_the_definitions_and_fixed_values():
     fixed = LatexExporter().export(DOCS["kerr"], context("kerr", params="M=1,a=0"))
     # a = 0: the cross term disappears (Schwarzschild in Boyer-Lindquist form)
     assert r"\mathrm{d}t \, \mathrm{d}\phi" not in fixed and r"a = 0" in fixed
+
+
+def test_domain_relations_settled_by_fixed_values():
+    """A domain relation the fixed values make true everywhere is dropped (Lambda r^2 < 3 at Lambda = -1/100:
+    -r^2/100 < 3 for every real r); one they make false everywhere is a one-line error naming --set."""
+    from gravicat.format.metricfile import validate
+
+    raw = {
+        "id": "static-lambda-demo", "title": "Static chart with a cosmological constant of either sign",
+        "field-equations": "vacuum",
+        "parameters": {"Lambda": {"description": "cosmological constant", "default": "1"}},
+        "charts": {"static": {
+            "coordinates": ["t", "r", "theta", "phi"], "domain": ["r > 0", "Lambda*r**2 < 3", "Lambda < 2",
+                                                                    "0 < theta < pi"],
+            "line-element": "-(1 - Lambda*r**2/3)*dt**2 + dr**2/(1 - Lambda*r**2/3) "
+                            "+ r**2*(dtheta**2 + sin(theta)**2*dphi**2)"}},
+    }
+    doc = validate(raw, "static-lambda.toml")
+    ctx = {"revision": doc.hash, "checks": [], "allow_unverified": True, "date": "2031-04-05"}
+    for exporter in (PythonExporter(), CExporter()):
+        text = exporter.export(doc, {**ctx, "params": "Lambda=-1/100"})
+        assert "Lambda*r**2" not in text.split("DOMAIN", 1)[1].splitlines()[0]
+    with pytest.raises(InputError) as err:
+        PythonExporter().export(doc, {**ctx, "params": "Lambda=3"})
+    assert err.value.source == "--set" and "holds nowhere" in str(err.value) and "\n" not in str(err.value)
