@@ -186,7 +186,12 @@ def merge_powers(expr, coords, relations):
       ``((x - 1)/(x + 1))**delta`` and the same base written with another denominator are the
       same generator. Nothing else is changed."""
     expr = sp.sympify(expr)
-    if not expr.has(sp.Pow) or relations is None:
+    if relations is None:
+        return expr
+    # one cheap look first: most expressions hold no power these rules touch
+    pows = [p for p in expr.atoms(sp.Pow) if not p.exp.is_Integer]
+    if not any((p.exp.is_Rational and isinstance(p.base, sp.Pow) and p.base.exp.is_Rational)
+               or not p.exp.is_Number for p in pows):
         return expr
     sub = _positive_parametrisation(tuple(coords), relations)
     symbols = set(coords)
