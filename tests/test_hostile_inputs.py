@@ -165,3 +165,16 @@ def test_a_bad_database_url_is_one_line_without_the_password(url):
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("Error: --db")
     assert r.exception is None or isinstance(r.exception, SystemExit)
+
+
+def test_long_subjects_and_an_empty_revision_are_one_line_errors(empty_catalogue):
+    """Issue 14 items 10 and 12: a 100,000-character id (limit 4096 characters), a file name
+    component too long, and 'revert ID ""' are one-line errors (exit 2)."""
+    cli = empty_catalogue
+    assert cli("add", str(Path(__file__).parent / "data" / "rindler-demo.toml")).exit_code == 0
+    for args in (["show", "a" * 100_000], ["check", "a" * 300], ["revert", "halcyon-rindler", ""]):
+        r = cli(*args)
+        assert r.exit_code == 2, r.output
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith("Error: "), lines
+    assert "limit 4096" in cli("show", "a" * 100_000).stderr

@@ -76,6 +76,9 @@ class Resolved:
         return self.ref.is_file
 
 
+MAX_SUBJECT = 4096  # characters of a subject: the longest path Linux opens (PATH_MAX)
+
+
 def _looks_like_file(text: str) -> bool:
     return (text.lower().endswith(FILE_SUFFIXES) or "/" in text or "\\" in text
             or text.startswith((".", "~")))
@@ -88,7 +91,15 @@ def parse_subject(text: str, *, chart: str | None = None, revision: str | None =
     if not isinstance(text, str) or not text.strip():
         raise InputError("subject", None, f"empty; give {FORMS}")
     text = text.strip()
-    ref = _parse(text)
+    if len(text) > MAX_SUBJECT:  # issue 14 item 10: never an OSError "File name too long"
+        raise InputError(text[:40] + "...", None, f"is {len(text)} characters long (limit {MAX_SUBJECT})")
+    if revision is not None and not revision.strip():  # issue 14 item 12: 'revert kerr ""'
+        raise InputError("REVISION", None, "is empty; give a revision number or a hash prefix")
+    try:
+        ref = _parse(text)
+    except (OSError, ValueError) as exc:  # a path component too long, a NUL in the text
+        reason = getattr(exc, "strerror", None) or "not a usable file name"
+        raise InputError(text[:80], None, f"not a metric file or an entry ({reason})") from None
     if chart is not None:
         if ref.chart is not None and ref.chart != chart:
             raise InputError(text, None, f"names chart '{ref.chart}' but --chart is '{chart}'; give one")

@@ -264,7 +264,11 @@ def revert(
         from gravicat.errors import InputError
 
         raise InputError("REV", None, "give the revision to restore once: ID REV or ID@REV")
-    rev = rev or at
+    rev = rev if rev is not None else at
+    if not rev.strip():  # issue 14 item 12: an empty revision is not "the latest"
+        from gravicat.errors import InputError
+
+        raise InputError("REV", None, "is empty; give a revision number or a hash prefix (see 'gravicat history')")
     who = load_settings(author=author).author
     with app_context(ctx).transaction() as session:
         old, stored = hist.revert(session, entry, rev, author=who, message=message, tool_version=__version__)
