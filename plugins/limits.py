@@ -105,7 +105,7 @@ def _expand_flint(geometry, i, radial):
 
 class LimitsCheck:
     name = "limits"
-    version = "2"
+    version = "3"  # 3: a reduces-to naming no chart fails
     screens_repairs = True  # repair runs it for the baseline and the proof of a repaired chart
 
     def check(self, geometry: PreparedChart) -> list[CheckResult]:
@@ -139,8 +139,8 @@ class LimitsCheck:
         if resolve is None:
             return result(check, "skipped", "none", f"cannot resolve {lim.reduces_to!r}: no resolver available", self)
         target = resolve(lim.reduces_to)
-        if target is None:
-            return result(check, "skipped", "none",
+        if target is None:  # a limit naming nothing is a broken claim, not a skipped one (issue 14 item 12)
+            return result(check, "fail", "none",
                           f"target chart {lim.reduces_to!r} not found (looked in this document, the user's "
                           "catalogue and the bundled catalogue)", self)
         n = geometry.n

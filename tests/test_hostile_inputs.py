@@ -178,3 +178,15 @@ def test_long_subjects_and_an_empty_revision_are_one_line_errors(empty_catalogue
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and lines[0].startswith("Error: "), lines
     assert "limit 4096" in cli("show", "a" * 100_000).stderr
+
+
+def test_a_limit_naming_no_entry_fails(tmp_path, empty_catalogue):
+    """Issue 14 item 12: a reduces-to naming a non-existent entry was 'skipped' with exit 0."""
+    path = tmp_path / "nowhere.toml"
+    path.write_text('id = "fen-nowhere"\ntitle = "Limit to nowhere"\nfield-equations = "none"\n'
+                    '[parameters.m]\n[charts.main]\ncoordinates = ["t", "x"]\n'
+                    'line-element = "-(1 + m*x**2)*dt**2 + dx**2"\n'
+                    '[limits.flat]\nset = { m = "0" }\nreduces-to = "fen-no-such-entry:main"\n')
+    r = empty_catalogue("check", str(path), "--only", "limits", "--budget", "2")
+    assert r.exit_code == 1, r.output
+    assert "fail" in r.stdout and "not found" in r.stdout
