@@ -190,3 +190,21 @@ def test_a_limit_naming_no_entry_fails(tmp_path, empty_catalogue):
     r = empty_catalogue("check", str(path), "--only", "limits", "--budget", "2")
     assert r.exit_code == 1, r.output
     assert "fail" in r.stdout and "not found" in r.stdout
+
+
+def test_init_says_ready_only_with_every_table(tmp_path):
+    """Issue 14 item 12: 'init' said "ready" with a table missing."""
+    import sqlite3
+
+    from typer.testing import CliRunner
+
+    from gravicat.cli import app
+
+    url = f"sqlite:///{tmp_path / 'c.sqlite'}"
+    r = CliRunner().invoke(app, ["--db", url, "init", "--empty"])
+    assert r.exit_code == 0 and "ready" in r.stdout, r.output
+    with sqlite3.connect(tmp_path / "c.sqlite") as conn:
+        conn.execute("DROP TABLE tag")
+    r = CliRunner().invoke(app, ["--db", url, "init", "--empty"])
+    assert r.exit_code == 2 and "ready" not in r.stdout
+    assert "lacks the table(s) tag" in r.stderr and len(r.stderr.strip().splitlines()) == 1

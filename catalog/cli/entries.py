@@ -40,6 +40,14 @@ def init(ctx: typer.Context,
     with Catalogue(app_ctx.settings.database, disable_plugins=app_ctx.settings.disable_plugins) as cat:
         counts = cat.init(bundled=not empty)
     total = counts["total"]
+    from gravicat.store.db import missing_tables
+
+    missing = missing_tables(app_ctx.engine)
+    if missing:  # issue 14 item 12: "ready" only when every table is there
+        from gravicat.errors import DatabaseError
+
+        raise DatabaseError(f"--db {safe_url(app_ctx.settings.database)}: the catalogue lacks the table(s) "
+                            f"{', '.join(missing)}; it is damaged (restore it from a copy, or start a new one)")
     typer.echo(f"catalogue ready at {safe_url(app_ctx.settings.database)}: {total} entries"
                + ("" if empty else f" (bundled: {counts['new']} new, {counts['revised']} updated, "
                                    f"{counts['unchanged']} unchanged)"))

@@ -139,6 +139,16 @@ def upgrade(engine: Engine, target: str = "head") -> None:
         raise _operational(engine.url.render_as_string(hide_password=False), exc) from None
 
 
+def missing_tables(engine: Engine) -> list[str]:
+    """Tables of this schema that the database lacks (a damaged catalogue), sorted."""
+    from sqlalchemy import inspect
+
+    from gravicat.store.models import Base
+
+    present = set(inspect(engine).get_table_names())
+    return sorted(set(Base.metadata.tables) - present)
+
+
 def known_revisions() -> list[str]:
     """The schema revisions of this gravicat in chain order (the ``NNNN_`` prefix of each migration
     file; read from the package without importing Alembic)."""
