@@ -8,7 +8,6 @@ import subprocess
 
 import numpy as np
 import pytest
-import typer
 
 from gravicat.errors import InputError
 from gravicat.export.hamiltonian import c99_source, hamiltonian_system
@@ -172,22 +171,11 @@ def test_hamiltonian_refuses_missing_values_and_functions():
 
 
 def _image_cli(tmp_path, *args):
-    # `gravicat image` is not yet registered in gravicat.cli (docs/commands.md needs its section first): a
-    # small app with the same root context runs the command module as the registered app would.
     from typer.testing import CliRunner
 
-    from gravicat.cli import image
-    from gravicat.cli._base import AppContext
-    from gravicat.config import load_settings
+    from gravicat.cli import app
 
-    app = typer.Typer()
-
-    @app.callback()
-    def root(ctx: typer.Context):
-        ctx.obj = AppContext(settings=load_settings(database=f"sqlite:///{tmp_path}/cat.sqlite", disable_plugins=None))
-
-    app.add_typer(image.app)
-    return CliRunner().invoke(app, ["image", *args])
+    return CliRunner().invoke(app, ["--db", f"sqlite:///{tmp_path}/cat.sqlite", "image", *args])
 
 
 def test_image_command_writes_png_npz_and_json(tmp_path):

@@ -502,7 +502,9 @@ class Equatorial(RootSearch, LandmarkSearch):
         u[idx["time"]], u[idx["azimuth"]] = ut, ut * omega
         g, dg_r, dg_th = (np.asarray(np.broadcast_to(np.asarray(x, dtype=float), (self.chart.n, self.chart.n)))
                           for x in self.chart._np_full(float(radius), *self._pf))
-        norm_residual = float(u @ g @ u + 1)
+        # relative to the size of the terms of g(u, u): a chart whose metric is ~1e33 at the radius (Linet-Tian)
+        # cancels large terms, and an absolute float residual there says nothing about the orbit
+        norm_residual = float(abs(u @ g @ u + 1) / max(1.0, float(np.abs(u) @ np.abs(g) @ np.abs(u))))
         force = np.zeros(self.chart.n)
         force[idx["radial"]] = u @ dg_r @ u
         if idx["polar"] is not None:
