@@ -133,7 +133,7 @@ def zero_sets(geometry, points, limit: int = 3) -> list[tuple[str, str]]:
         return []
     syms = list(geometry.params) + list(geometry.coords)
     coords = set(geometry.coords)
-    sampler = geometry._sampler
+    sampler = geometry.sampler
     notes = []
     seen = set()
     for factor in sp.Mul.make_args(sp.factor(det)):

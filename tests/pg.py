@@ -1,4 +1,4 @@
-"""A real PostgreSQL server for the store and queue tests, and a fresh database per test.
+"""A real PostgreSQL server for the store and cluster tests, and a fresh database per test.
 
 Where the server comes from, in this order:
 

@@ -5,7 +5,7 @@ Owns the Python API (:class:`gravicat.Catalogue` in :mod:`.catalogue`; :class:`E
 :class:`CheckResults` in :mod:`.results`), the one subject syntax ``FILE[:CHART]`` /
 ``ID[@REVISION][:CHART]`` (:mod:`.subjects`), verification units run in forked children under
 CPU-second caps (:mod:`.verifying`), revision history, diffs and restores (:mod:`.history`) and
-the verification queue (:mod:`.queue`).
+verification on a Dask cluster (:mod:`.cluster`).
 
 May import: every room below it (``repair``, ``physics``, ``export``, ``engine``, ``format``,
 ``store``) the settings (``gravicat.config``) and the core contract; never ``cli``.

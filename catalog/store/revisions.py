@@ -132,8 +132,8 @@ def revision(session: Session, slug: str, rev: str | None = None) -> Revision:
     q = select(Revision).where(Revision.entry_id == entry.id)
     if rev.isdigit() and len(rev) < 6:
         matches = list(session.scalars(q.where(Revision.number == int(rev))))
-    else:
-        matches = list(session.scalars(q.where(Revision.hash.like(f"{rev.lower()}%"))))
+    else:  # a plain prefix comparison: % and _ are not wildcards
+        matches = list(session.scalars(q.where(func.substr(Revision.hash, 1, len(rev)) == rev.lower())))
     if not matches:
         raise NotFound(f"entry '{slug}' has no revision '{rev}' (see 'gravicat show {slug}')")
     if len({m.hash for m in matches}) > 1:
