@@ -166,11 +166,11 @@ def test_own_document_hides_the_bundled_one(tmp_path):
     assert list(docs).count("schwarzschild") == 1
 
 
-def _check_limit(cli, tmp_path, target):
+def _check_limit(cli, tmp_path, target, exit_code=0):
     path = tmp_path / "drift.toml"
     path.write_text(LIMITED.replace("TARGET", target))
     r = cli("check", str(path), "--json", "--only", "limits")
-    assert r.exit_code == 0, r.output
+    assert r.exit_code == exit_code, r.output
     charts = json.loads(r.stdout)["charts"]
     return {c["check"]: c for c in charts[0]["checks"]}, path
 
@@ -188,9 +188,10 @@ def test_unknown_reduces_to_target_is_reported_as_before(cli, tmp_path):
     from gravicat.registry import make_plugin_manager, verifiers
     from gravicat.store import revisions as store
 
-    checks, path = _check_limit(cli, tmp_path, "no-such-entry:static")
+    checks, path = _check_limit(cli, tmp_path, "no-such-entry:static", exit_code=1)
     lim = checks["limits:same-as-schwarzschild"]
-    assert lim["status"] == "skipped" and lim["detail"].startswith("target chart 'no-such-entry:static' not found")
+    # limits version 3: a target found nowhere fails that limit (it was skipped before; issue 14 item 12)
+    assert lim["status"] == "fail" and lim["detail"].startswith("target chart 'no-such-entry:static' not found")
     # the same result as resolving against every bundled document read through the store
     doc = load_file(path)
     chosen = [verifiers(make_plugin_manager())["limits"]]
@@ -301,7 +302,7 @@ def test_piped_check_prints_the_whole_detail(cli, tmp_path):
     path = tmp_path / "drift.toml"
     path.write_text(LIMITED.replace("TARGET", "no-such-entry:static"))
     r = cli("check", str(path), "--only", "limits")  # CliRunner's output is not a terminal
-    assert r.exit_code == 0, r.output
+    assert r.exit_code == 1, r.output  # the unknown target fails the limit (limits version 3)
     line = next(x for x in _table_lines(r.stdout) if "limits:same-as-schwarzschild" in x)
     assert line.rstrip().endswith("the user's catalogue and the bundled catalogue)") and "…" not in line
 
