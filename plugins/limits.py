@@ -60,18 +60,6 @@ def _subs(expr, mapping):
     return expr.subs(mapping, simultaneous=True)
 
 
-def _coeffs_in(F, p, j):
-    """Coefficients of the base polynomial ``p`` in generator ``j``: {power: polynomial}."""
-    out = {}
-    for exps, c in p.terms():
-        e = exps[j]
-        mono = list(exps)
-        mono[j] = 0
-        term = F.ctx.from_dict({tuple(mono): c})
-        out[e] = out[e] + term if e in out else term
-    return out
-
-
 def _expand_flint(geometry, i, radial):
     """(c0, c1) of g_tt = c0 + c1/r + O(1/r^2) on the flint path, or None when not applicable there."""
     F = geometry.field
@@ -87,7 +75,7 @@ def _expand_flint(geometry, i, radial):
     ri = geometry.coords.index(radial)
     if any(F.dgen(g.index, ri) is not None for g in F.base if g is not gen):
         return None
-    num, den = _coeffs_in(F, el.num0(), gen.index), _coeffs_in(F, el.d, gen.index)
+    num, den = F.coefficients_in(el.num0(), gen.index), F.coefficients_in(el.d, gen.index)
     dn, dd = max(num), max(den)
     if dn > dd:
         return None  # g_tt grows: let the series say so
