@@ -23,6 +23,7 @@ from pathlib import Path
 from typing import Any
 
 from gravicat.errors import InputError
+from gravicat.format.declarations import check_declarations
 from gravicat.format.expr import (
     RESERVED,
     Names,
@@ -49,10 +50,11 @@ _NAME = r"[A-Za-z][A-Za-z0-9_]*"
 FUNCTION_DECL = re.compile(rf"^\s*({_NAME})\s*\(\s*({_NAME}(?:\s*,\s*{_NAME})*)\s*\)\s*$")
 
 TOP_KEYS = ("format", "id", "title", "summary", "field-equations", "tags", "references", "notes", "flat-when",
-            "parameters", "charts", "limits")
+            "parameters", "charts", "limits", "kind")
 PARAM_KEYS = ("description", "assume", "range", "default")
 CHART_KEYS = ("coordinates", "domain", "functions", "define", "line-element", "metric", "cosmological-constant",
-              "potential", "fluid", "null-dust", "observers", "transforms", "invariants")
+              "potential", "fluid", "null-dust", "observers", "transforms", "invariants",
+              "petrov-type", "killing", "killing-tensors", "energy-conditions")  # the last four: format/declarations.py
 LIMIT_KEYS = ("chart", "set", "coordinates", "reduces-to")
 
 
@@ -274,6 +276,9 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
     """Check a decoded document and return its canonical form. Raises InputError."""
     v = _V(source)
     v.table(raw, "", TOP_KEYS)
+    from gravicat.format import initialdata  # kind = "initial-data": a 3-geometry (format/initialdata.py)
+
+    kind = initialdata.check_kind(v, raw)
     if "format" in raw and raw["format"] != FORMAT:
         v.fail("format", f"'{raw['format']}' is not a format this gravicat reads ({FORMAT})")
     for key in ("id", "title", "field-equations", "charts"):
@@ -287,8 +292,9 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         v.fail("title", "is empty")
     summary = v.string(raw.get("summary", ""), "summary", max_len=2_000).strip()
     claim = v.string(raw["field-equations"], "field-equations")
-    if claim not in FIELD_EQUATIONS:
-        v.fail("field-equations", f"'{claim}' is not one of {', '.join(FIELD_EQUATIONS)}")
+    claims = initialdata.CLAIMS if kind == initialdata.KIND else FIELD_EQUATIONS
+    if claim not in claims:
+        v.fail("field-equations", f"'{claim}' is not one of {', '.join(claims)}")
     tags = v.str_list(raw.get("tags", []), "tags")
     for i, tag in enumerate(tags):
         if not SLUG.match(tag):
@@ -332,15 +338,19 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
     for cname, craw in charts_raw.items():
         if not isinstance(cname, str) or not SLUG.match(cname):
             v.fail(f"charts.{cname}", "chart names are slugs (lowercase letters, digits and '-')")
-        v.table(craw, f"charts.{cname}", CHART_KEYS)
+        v.table(craw, f"charts.{cname}", initialdata.CHART_KEYS if kind == initialdata.KIND else CHART_KEYS)
         if "coordinates" not in craw:
             v.fail(f"charts.{cname}.coordinates", "missing (required)")
         coords = v.str_list(craw["coordinates"], f"charts.{cname}.coordinates")
         if len(coords) < 2:
             v.fail(f"charts.{cname}.coordinates", "a chart needs at least two coordinates")
         chart_coords[cname] = coords
-    charts = {cname: _chart(v, entry_id, cname, craw, dict(taken), param_names, chart_coords)
-              for cname, craw in charts_raw.items()}
+    if kind == initialdata.KIND:
+        charts = {cname: initialdata.validate_chart(v, cname, craw, dict(taken), param_names, chart_coords[cname],
+                                                    claim) for cname, craw in charts_raw.items()}
+    else:
+        charts = {cname: _chart(v, entry_id, cname, craw, dict(taken), param_names, chart_coords)
+                  for cname, craw in charts_raw.items()}
 
     limits = {}
     for lname, lraw in v.table(raw.get("limits", {}), "limits").items():
@@ -367,6 +377,8 @@ def validate(raw: dict[str, Any], source: str) -> MetricDocument:
         "limits": limits,
         "flat-when": flat_when,
     }
+    if kind == initialdata.KIND:  # only then: the canonical form (and hash) of a spacetime is unchanged
+        data = {"format": FORMAT, "kind": kind, **{k: x for k, x in data.items() if k != "format"}}
     return MetricDocument(data, source)
 
 
@@ -610,6 +622,7 @@ def _chart(v: _V, entry_id: str, cname: str, craw: dict, taken: dict[str, str], 
         invariants[iname] = {"value": v.expr(iraw["value"], names, f"{field}.value"),
                              "source": v.string(iraw["source"], f"{field}.source", max_len=1_000).strip()}
     chart["invariants"] = invariants
+    chart.update(check_declarations(v, craw, base, names, coords, defines))  # only the keys declared
     check_chart_size(v.source, base, chart)  # degree, terms and coordinates after definitions (format/size.py)
     return chart
 
