@@ -51,6 +51,9 @@ def chart_scope(doc: MetricDocument, chart: str | None = None) -> ChartScope:
     from gravicat.format.metricfile import FUNCTION_DECL
 
     data = doc.data
+    if data.get("kind") == "initial-data":  # no spacetime metric to read (format/initialdata.py)
+        raise InputError(doc.source, "kind", f"{doc.id} is initial data (a 3-geometry with extrinsic curvature), "
+                                             "not a spacetime: use the initial-data exporters and checks")
     chart = chart or next(iter(data["charts"]))
     if chart not in data["charts"]:
         from gravicat.errors import NotFound
@@ -113,9 +116,14 @@ def parameter_symbols(doc: MetricDocument) -> dict[str, Any]:
 def build_chart(doc: MetricDocument, chart: str | None = None,
                 resolve: Callable[[str], Any] | None = None):
     """The sympy form of one chart (default: the first). Raises InputError for a bad line element."""
+    if doc.data.get("kind") == "initial-data":  # the spatial metric of an initial-data chart
+        from gravicat.format.initialdata import build_initial_chart
+
+        return build_initial_chart(doc, chart, resolve)
     import sympy
 
     from gravicat.format.chartspec import ChartSpec, Fluid, Invariant, Limit, NullDust
+    from gravicat.format.declarations import DECLARATION_KEYS, build_declarations
     from gravicat.format.expr import relation_to_sympy, to_sympy
     from gravicat.format.metricfile import _note_function_use, _refuse_function_in_domain
 
@@ -189,6 +197,8 @@ def build_chart(doc: MetricDocument, chart: str | None = None,
             reduces_to=lim["reduces-to"],
         ))
     extra: dict[str, Any] = {"source": source}
+    if any(k in c for k in DECLARATION_KEYS):  # petrov-type, killing, ... (format/declarations.py)
+        extra["declarations"] = build_declarations(c, build, source, base)
     if resolve is not None:
         extra["resolve"] = resolve
     return ChartSpec(
