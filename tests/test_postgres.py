@@ -282,3 +282,26 @@ def test_two_processes_adding_100_entries_each(any_url, engine, tmp_path):  # no
         _assert_linear(chain)
         assert len(chain) == len(by_slug[slug]) == (14 if k == 0 else 12)  # rounds 0, 4, ... 96 of each process
         assert sorted((n, h) for _, n, h in by_slug[slug]) == [(n, h) for _, _, n, h in chain]
+
+
+# --------------------------------------------------------------------------- control characters (issue 14 item 5)
+
+
+@pytest.mark.parametrize("bad", ["\\u0000", "\\u001b]0;x\\u0007"], ids=["NUL", "OSC"])
+def test_a_control_character_in_a_text_field_is_refused_alike(any_url, cli, tmp_path, bad):  # noqa: F811
+    """A NUL (which PostgreSQL's text type cannot hold: it crashed the write with the SQL parameters
+    in a traceback) or an escape sequence in a title is refused at `add` with the same one line on
+    both databases, and nothing is stored."""
+    assert cli("init", "--empty", db=any_url).exit_code == 0
+    source = FIXTURE.read_text(encoding="utf-8")
+    hostile = tmp_path / "hostile-title.toml"
+    hostile.write_text(source.replace('title = "', f'title = "{bad}', 1), encoding="utf-8")
+    assert hostile.read_text(encoding="utf-8") != source
+    added = cli("add", str(hostile), db=any_url)
+    line = _one_error_line(added)
+    assert added.exit_code == 2
+    code = "0000" if bad == "\\u0000" else "001B"
+    # the message of gravicat.format (the same code on both databases; nothing reaches the driver)
+    assert line.startswith(f"Error: {hostile}: title: contains the control character U+{code}")
+    assert "INSERT" not in added.output and "\x00" not in added.output
+    assert json.loads(cli("list", "--json", db=any_url).stdout) == []
