@@ -65,16 +65,33 @@ def select_verifiers(all_verifiers: Mapping[str, Any], only: Iterable[str] | Non
     return chosen
 
 
+def applies(verifier, spec) -> bool:
+    """Whether ``verifier`` checks charts of the kind of ``spec``: a verifier's ``kinds`` attribute lists
+    them (``spacetime``, ``initial-data``); without one it checks spacetimes only."""
+    return spec.extra.get("kind", "spacetime") in getattr(verifier, "kinds", ("spacetime",))
+
+
+def _not_applicable(verifier, spec) -> CheckResult:
+    kind = spec.extra.get("kind", "spacetime")
+    detail = ("not a spacetime: an initial-data entry (a 3-geometry with extrinsic curvature)" if kind != "spacetime"
+              else f"applies to {' and '.join(getattr(verifier, 'kinds', ()))} entries only, not to a spacetime")
+    return CheckResult(check=verifier.name, status=Status.SKIPPED, method=Method.NONE, detail=detail)
+
+
 def run_verifier(verifier, geometry) -> list[CheckResult]:
-    """Run one verifier on a prepared chart; a crash becomes an ``error`` result, never an exception."""
+    """Run one verifier on a prepared chart; a crash becomes an ``error`` result, never an exception.
+    A verifier that does not apply to the chart's kind of entry (:func:`applies`) is ``skipped``."""
     start = time.perf_counter()
-    try:
-        results = list(verifier.check(geometry))
-        if not all(isinstance(r, CheckResult) for r in results):
-            raise TypeError("check() must return a list of CheckResult")
-    except Exception as exc:  # a faulty plugin must not stop the others
-        results = [CheckResult(check=verifier.name, status=Status.ERROR, method=Method.NONE,
-                               detail=f"the verifier crashed: {type(exc).__name__}: {exc}")]
+    if not applies(verifier, geometry.spec):
+        results = [_not_applicable(verifier, geometry.spec)]
+    else:
+        try:
+            results = list(verifier.check(geometry))
+            if not all(isinstance(r, CheckResult) for r in results):
+                raise TypeError("check() must return a list of CheckResult")
+        except Exception as exc:  # a faulty plugin must not stop the others
+            results = [CheckResult(check=verifier.name, status=Status.ERROR, method=Method.NONE,
+                                   detail=f"the verifier crashed: {type(exc).__name__}: {exc}")]
     elapsed = time.perf_counter() - start
     for r in results:
         r.verifier, r.version = verifier.name, verifier.version
@@ -131,7 +148,7 @@ def chart_cap(doc: MetricDocument, chart: str, n_verifiers: int, budget: float) 
     data = doc.data
     c = data["charts"][chart]
     declared = (sum(1 for lim in data["limits"].values() if lim["chart"] == chart) + len(data["flat-when"])
-                + len(c["transforms"]) + len(c["observers"]) + len(c["invariants"]))
+                + len(c.get("transforms", ())) + len(c.get("observers", ())) + len(c.get("invariants", ())))
     return CAP_BASE + budget * (n_verifiers + declared)
 
 

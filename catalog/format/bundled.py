@@ -5,6 +5,12 @@ after its id. Every room that needs them (the store's ``init``, the engine's res
 targets, repair's candidate targets, the Python API) reads them here, so they are listed, decoded
 and validated one way, with the source ``bundled:<file name>`` in every message and document.
 
+The initial-data entries (``kind = "initial-data"``, docs/initial-data.md) are package data too, in the
+folder ``initial-data`` of ``gravicat.data``: :func:`initial_data_files` and
+:func:`iter_initial_data_documents` read them, :func:`iter_all_bundled_documents` gives both kinds
+(what ``init`` loads). :func:`bundled_files` and :func:`iter_bundled_documents` stay the spacetimes only,
+the documents that charts, orbits, limits and probes compute with.
+
 Imports stay light: the files are decoded only when asked for.
 """
 
@@ -18,6 +24,7 @@ if TYPE_CHECKING:
     from gravicat.format.metricfile import MetricDocument
 
 PACKAGE = "gravicat.data.spacetimes"
+INITIAL_DATA = "initial-data"  # a folder of the package gravicat.data
 
 
 def bundled_folder():
@@ -33,6 +40,16 @@ def bundled_files() -> list[Path]:
                   key=lambda p: p.name)
 
 
+def initial_data_files() -> list[Path]:
+    """Every bundled initial-data file, sorted by file name."""
+    from importlib.resources import files
+
+    folder = files("gravicat.data") / INITIAL_DATA
+    if not folder.is_dir():
+        return []
+    return sorted((Path(str(p)) for p in folder.iterdir() if p.name.endswith(".toml")), key=lambda p: p.name)
+
+
 def bundled_path(entry_id: str) -> Path | None:
     """The bundled file named after ``entry_id`` (``kerr`` -> ``kerr.toml``), or None.
 
@@ -43,7 +60,9 @@ def bundled_path(entry_id: str) -> Path | None:
     if not isinstance(entry_id, str) or not SLUG.match(entry_id):
         return None
     path = bundled_folder() / f"{entry_id}.toml"
-    return Path(str(path)) if path.is_file() else None
+    if path.is_file():
+        return Path(str(path))
+    return next((p for p in initial_data_files() if p.name == f"{entry_id}.toml"), None)
 
 
 def read_bundled(path: Path) -> MetricDocument:
@@ -59,3 +78,15 @@ def iter_bundled_documents() -> Iterator[MetricDocument]:
     """Every bundled file as a validated document, in file-name order."""
     for path in bundled_files():
         yield read_bundled(path)
+
+
+def iter_initial_data_documents() -> Iterator[MetricDocument]:
+    """Every bundled initial-data file as a validated document, in file-name order."""
+    for path in initial_data_files():
+        yield read_bundled(path)
+
+
+def iter_all_bundled_documents() -> Iterator[MetricDocument]:
+    """The spacetimes, then the initial-data entries: the whole bundled catalogue, as ``init`` loads it."""
+    yield from iter_bundled_documents()
+    yield from iter_initial_data_documents()
