@@ -86,6 +86,16 @@ class Verified:
                 "checks": self.checks}
 
 
+class VerifyReport(list):
+    """What :meth:`Catalogue.verify` returns: a list of :class:`Verified`, one per entry, and with a
+    cluster, ``cluster``: the run's summary, the ``cluster`` object of ``verify --json`` (units,
+    done, stored, failures, workers, timings); None for a run in local children."""
+
+    def __init__(self, items: Iterable[Verified] = (), *, cluster: dict[str, Any] | None = None):
+        super().__init__(items)
+        self.cluster = cluster
+
+
 class Catalogue:
     """A gravicat catalogue.
 
@@ -337,13 +347,21 @@ class Catalogue:
         return found.check(only=only, budget=budget, jobs=jobs, catalogue=self)
 
     def verify(self, *subjects: str, all: bool = False, force: bool = False, budget: float = 20.0,  # noqa: A002
-               jobs: int = 1) -> list[Verified]:
+               jobs: int = 1, cluster: str | None = None) -> VerifyReport:
         """Verify entries and store the results against their revision, like ``gravicat verify``.
 
         ``subjects`` are ``ID[@REVISION]``; ``all=True`` takes every entry. Results already stored for
         the same content and verifier version are reused unless ``force``. Each chart runs in its own
         forked process (``jobs`` at a time) under the runner's CPU-time cap (10 s + ``budget`` per
         check); a chart that reaches it stores ``inconclusive`` results saying so.
+
+        ``cluster``: a Dask scheduler address (``"tcp://host:8786"``) or ``"local:N"`` (N local worker
+        processes, started and stopped by the call), as ``verify --cluster``; None takes the configured
+        ``cluster`` setting (``GRAVICAT_CLUSTER``, ``config.toml``), and with none the local children
+        are used. On a cluster each (revision, chart) is stored in its own transaction as it completes,
+        so an interrupted call resumes when made again; :attr:`VerifyReport.cluster` then holds the run's
+        summary (``verify --json``'s ``cluster`` key). An unreachable or lost scheduler raises
+        :class:`gravicat.errors.ClusterError`; what was stored stays stored.
         """
         from gravicat.api.subjects import find_revision
         from gravicat.api.verifying import run_units, units_for
@@ -354,6 +372,13 @@ class Catalogue:
         if not subjects and not all:
             raise InputError("verify", None, "name entries to verify, or give all=True")
         chosen = select_verifiers(verifiers(self.plugins), None)
+        cluster = cluster or self.settings.cluster or None
+        if cluster is not None:
+            from gravicat.api.cluster import parse_address
+
+            parse_address(cluster)  # a malformed address is refused before anything is read
+            if jobs != 1:
+                raise InputError("jobs", None, "does not apply with cluster (the cluster's workers run the units)")
         with self.session() as s:
             if subjects:
                 revs = []
@@ -367,8 +392,19 @@ class Catalogue:
             units, keys = units_for(s, revs, chosen, force=force, budget=budget,
                                     blocked=self.settings.disable_plugins)
         self._release()
-        outputs = run_units(units, jobs, chosen)
-        summary = []
+        run = None
+        if cluster is not None:
+            from gravicat.api.cluster import store_output, verify_units
+
+            def store_one(out: dict[str, Any]) -> int:
+                with self.session() as s:
+                    return store_output(s, out, force=force)
+
+            outputs = []
+            run = verify_units(cluster, units, {v.name: v.version for v in chosen}, store=store_one).to_json()
+        else:
+            outputs = run_units(units, jobs, chosen)
+        summary = VerifyReport(cluster=run)
         with self.session() as s:
             for out in outputs:
                 rev = s.get(store.Revision, out["key"])
