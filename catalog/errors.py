@@ -13,6 +13,7 @@ a bug and keeps its traceback.
     │   └── SchemaOutdated  the schema is older than this version and may not be upgraded here
     ├── Conflict            another writer stored the same entry at the same moment; nothing was written
     ├── PluginError         a plugin failed to load or broke the hook contract
+    ├── ClusterError        the Dask scheduler cannot be reached, or was lost mid-run (stored results kept)
     └── CheckFailed (exit 1) a command ran fine and found a problem
 """
 
@@ -65,6 +66,14 @@ class Conflict(CatalogError):
 
 class PluginError(CatalogError):
     """A plugin could not be loaded or broke the hook contract."""
+
+
+class ClusterError(CatalogError):
+    """The Dask scheduler of ``verify --cluster`` cannot be reached, or was lost mid-run. Exit 2, like a
+    database that cannot be opened: the command could not do its work (it found no problem in a
+    metric). Every unit stored before the failure stays stored; running the command again resumes."""
+
+    exit_code = 2
 
 
 class CheckFailed(CatalogError):

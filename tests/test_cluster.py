@@ -5,7 +5,9 @@ What is checked (gravicat/api/cluster.py): every chart of the chosen bundled ent
 results stored exactly once; a worker SIGKILLed mid-run changes nothing in the outcome (the
 scheduler reschedules its unit); a second run computes nothing; `--cluster local:2` stores the
 same results as the local `--jobs 2`; a unit that kills every worker that runs it ends `error`
-after the scheduler's allowed-failures; an unreachable scheduler is one line, exit 2, nothing lost.
+after the scheduler's allowed-failures; an unreachable scheduler is one line, exit 2, nothing lost;
+a scheduler SIGKILLed mid-run is one line, exit 2, the units stored before stay stored and a run
+against a new scheduler stores only the rest; the Python API's ``Catalogue.verify(cluster=...)``.
 
 The entries are a subset of small bundled entries (the whole catalogue takes about 30 CPU seconds;
 tests/benchmarks/bench_cluster.py runs it).
@@ -31,6 +33,9 @@ from sqlalchemy.orm import Session
 distributed = pytest.importorskip("distributed", reason="dask[distributed] is not installed: "
                                                         "verify --cluster cannot be tested (pip install -e .)")
 
+from gravicat.api.catalogue import Catalogue  # noqa: E402
+from gravicat.errors import ClusterError, InputError  # noqa: E402
+from gravicat.format.bundled import bundled_path  # noqa: E402
 from gravicat.store import db  # noqa: E402
 from gravicat.store.models import CheckRecord, Entry, Revision  # noqa: E402
 
@@ -64,30 +69,36 @@ def _stop(proc: subprocess.Popen) -> None:
         proc.wait(5)
 
 
-@pytest.fixture(scope="module")
-def scheduler(tmp_path_factory):
-    """A real `dask scheduler` and two `dask worker` processes (one thread each) on 127.0.0.1."""
-    logs = tmp_path_factory.mktemp("dask")
+def _start_cluster(logs: Path, workers: int, procs: list[subprocess.Popen]) -> str:
+    """Start a real `dask scheduler` and ``workers`` `dask worker` processes (one thread each) on
+    127.0.0.1, appending them to ``procs`` (the scheduler first) as they start; the address."""
     port = _free_port()
     address = f"tcp://127.0.0.1:{port}"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(TESTS), os.environ.get("PYTHONPATH", "")]))
-    procs = [_dask("scheduler", "--host", "127.0.0.1", "--port", str(port), "--no-dashboard",
-                   log=logs / "scheduler.log", env=env)]  # env: the scheduler unpickles test functions too
+    procs.append(_dask("scheduler", "--host", "127.0.0.1", "--port", str(port), "--no-dashboard",
+                       log=logs / "scheduler.log", env=env))  # env: the scheduler unpickles test functions too
+    deadline = time.monotonic() + 60
+    while True:
+        try:
+            socket.create_connection(("127.0.0.1", port), timeout=1).close()
+            break
+        except OSError:
+            assert time.monotonic() < deadline, (logs / "scheduler.log").read_text()
+            time.sleep(0.2)
+    for k in range(workers):
+        procs.append(_dask("worker", address, "--nthreads", "1", "--no-dashboard", "--host", "127.0.0.1",
+                           "--name", f"w{k}", log=logs / f"worker{k}.log", env=env))
+    with distributed.Client(address, timeout=30) as client:
+        client.wait_for_workers(workers, timeout=120)
+    return address
+
+
+@pytest.fixture(scope="module")
+def scheduler(tmp_path_factory):
+    """A real `dask scheduler` and two `dask worker` processes (one thread each) on 127.0.0.1."""
+    procs: list[subprocess.Popen] = []
     try:
-        deadline = time.monotonic() + 60
-        while True:
-            try:
-                socket.create_connection(("127.0.0.1", port), timeout=1).close()
-                break
-            except OSError:
-                assert time.monotonic() < deadline, (logs / "scheduler.log").read_text()
-                time.sleep(0.2)
-        for k in range(2):
-            procs.append(_dask("worker", address, "--nthreads", "1", "--no-dashboard", "--host", "127.0.0.1",
-                               "--name", f"w{k}", log=logs / f"worker{k}.log", env=env))
-        with distributed.Client(address, timeout=30) as client:
-            client.wait_for_workers(2, timeout=120)
-        yield address
+        yield _start_cluster(tmp_path_factory.mktemp("dask"), 2, procs)
     finally:
         for proc in reversed(procs):
             _stop(proc)
@@ -119,11 +130,11 @@ def _stored(url: str) -> list[tuple]:
         engine.dispose()
 
 
-def _charts(url: str) -> set[tuple[str, str]]:
+def _charts(url: str, entries: list[str] = ENTRIES) -> set[tuple[str, str]]:
     engine = db.make_engine(url)
     try:
         with Session(engine) as session:
-            return {(e, c) for e in ENTRIES
+            return {(e, c) for e in entries
                     for c in session.scalars(select(Revision).join(Entry).where(Entry.slug == e)).one()
                     .document["charts"]}
     finally:
@@ -241,3 +252,77 @@ def test_a_unit_that_keeps_killing_its_worker_ends_in_error(scheduler, tmp_path)
     assert len(run.failures) == 1 and "ended its Dask worker process too often" in run.failures[0]
     rows = _stored(url)
     assert {r[5] for r in rows} == {"error"} and len(rows) == len(chosen)
+
+
+def test_scheduler_lost_mid_run_is_one_line_keeps_what_was_stored_and_a_new_scheduler_resumes(tmp_path):
+    """`verify --all --cluster tcp://...` whose scheduler is SIGKILLed after some units were stored:
+    one line, exit 2, the stored units stay; a run against a new scheduler stores the rest, once."""
+    url = f"sqlite:///{tmp_path / 'cat.sqlite'}"
+    with Catalogue(url) as cat:  # a small catalogue, so that --all stays lean
+        cat.init(bundled=False)
+        for slug in ENTRIES:
+            cat.add(bundled_path(slug), author="cluster test")
+    charts = _charts(url)
+    procs: list[subprocess.Popen] = []
+    try:
+        address = _start_cluster(tmp_path, 1, procs)  # one worker: the units come back one by one
+        run = subprocess.Popen([sys.executable, "-m", "gravicat", "verify", "--all", "--cluster", address],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                               env=dict(os.environ, GRAVICAT_DB=url, GRAVICAT_CONFIG=os.devnull))
+        deadline = time.monotonic() + 300
+        while _count(url) == 0 and run.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert run.poll() is None, f"the run ended before the scheduler could be lost: {run.stderr.read()}"
+        os.killpg(procs[0].pid, signal.SIGKILL)  # the scheduler, mid-run
+        out, err = run.communicate(timeout=300)
+    finally:
+        for proc in reversed(procs):
+            _stop(proc)
+    lines = [line for line in err.splitlines() if line.strip()]
+    assert run.returncode == 2, err
+    assert len(lines) == 1 and lines[0].startswith(f"Error: --cluster {address}: lost the Dask scheduler"), err
+    assert "what was stored stays stored" in lines[0]
+    kept = _stored(url)
+    assert kept, "the units stored before the scheduler was lost were kept"
+    done = {(r[0], r[1]) for r in kept}
+    assert done < charts  # some, not all
+
+    procs = []
+    try:
+        address = _start_cluster(tmp_path, 1, procs)
+        again = _gravicat(url, "verify", "--all", "--cluster", address, "--json")
+    finally:
+        for proc in reversed(procs):
+            _stop(proc)
+    assert again.returncode == 0, again.stderr
+    summary = json.loads(again.stdout)
+    assert summary["cluster"]["units"] == len(charts - done)  # only what was not stored yet
+    rows = _stored(url)
+    _assert_once(rows, charts)
+    assert set(kept) <= set(rows)
+
+
+def test_python_api_verify_on_a_cluster(scheduler, tmp_path):
+    """gravicat.Catalogue.verify(..., cluster=ADDRESS) stores what the command stores and reports the run."""
+    url = f"sqlite:///{tmp_path / 'cat.sqlite'}"
+    with Catalogue(url) as cat:
+        cat.init(bundled=False)
+        cat.add(bundled_path("kasner"), author="cluster test")
+        with pytest.raises(InputError, match="local:N"):
+            cat.verify("kasner", cluster="local:0")
+        with pytest.raises(InputError, match="does not apply with cluster"):
+            cat.verify("kasner", cluster=scheduler, jobs=2)
+        assert _count(url) == 0
+        report = cat.verify("kasner", cluster=scheduler)
+        charts = {c for e, c in _charts(url, ["kasner"])}
+        assert [v.id for v in report] == ["kasner"] and report[0].status == "pass"
+        assert report[0].computed == len(charts) == report.cluster["units"] == report.cluster["stored"]
+        assert report.cluster["failures"] == [] and report.cluster["address"] == scheduler
+        assert {c["chart"] for c in report[0].checks} == charts
+        again = cat.verify("kasner", cluster=scheduler)
+        assert again.cluster["units"] == 0 and again[0].computed == 0
+        local = cat.verify("kasner")  # no cluster given or configured: local children, nothing to do
+        assert local.cluster is None and local[0].computed == 0
+    _assert_once(_stored(url), {("kasner", c) for c in charts})
+    with Catalogue(url) as cat, pytest.raises(ClusterError, match="cannot reach the Dask scheduler"):
+        cat.verify("kasner", force=True, cluster=f"tcp://127.0.0.1:{_free_port()}")

@@ -17,8 +17,8 @@ are serialised already).
 Faults: a worker that dies mid-unit has its unit rescheduled by the scheduler; a unit that has
 killed ``allowed-failures`` workers (the scheduler's setting, 3 by default) ends with every
 verifier ``error`` and a message, and is not tried again. A scheduler that cannot be reached, or
-is lost mid-run, is a :class:`ClusterError` (one line); what was stored stays stored, and running
-the same command again resumes.
+is lost mid-run, is a :class:`gravicat.errors.ClusterError` (one line, exit 2); what was stored
+stays stored, and running the same command again resumes.
 
 Addresses: ``tcp://HOST:PORT`` (or ``tls://``, ``ws://``...) names a running scheduler;
 ``local:N`` starts a local cluster of N worker processes (one thread each) for the command and
@@ -32,13 +32,9 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
-from gravicat.errors import CatalogError, InputError
+from gravicat.errors import CatalogError, ClusterError, InputError
 
 CONNECT_TIMEOUT = 10.0  # seconds to reach a scheduler before giving up
-
-
-class ClusterError(CatalogError):
-    """The Dask scheduler cannot be reached, or was lost mid-run; what was stored stays stored."""
 
 
 @dataclass
@@ -52,12 +48,13 @@ class ClusterRun:
     failures: list[str] = field(default_factory=list)  # one line per unit that ended in error
     workers: int = 0  # workers seen when the run started
     seconds: float = 0.0  # elapsed, connecting included
+    run_seconds: float = 0.0  # elapsed from the first unit submitted to the last one back
     unit_seconds: float = 0.0  # sum of the units' own elapsed time in the workers
 
     def to_json(self) -> dict[str, Any]:
         return {"address": self.address, "units": self.units, "done": self.done, "stored": self.stored,
                 "failures": list(self.failures), "workers": self.workers, "seconds": round(self.seconds, 3),
-                "unit_seconds": round(self.unit_seconds, 3)}
+                "run_seconds": round(self.run_seconds, 3), "unit_seconds": round(self.unit_seconds, 3)}
 
 
 def parse_address(text: str) -> tuple[str, int | str]:
@@ -178,13 +175,19 @@ def verify_units(address: str, units: list[dict[str, Any]], versions: dict[str, 
     import logging
 
     import dask
+    import distributed  # noqa: F401 - its import sets the levels of its loggers: before they are quietened
 
     kind, where = parse_address(address)
     run = ClusterRun(address=address, units=len(units))
     start = time.perf_counter()
-    quiet = logging.getLogger("distributed")
-    level = quiet.level
-    quiet.setLevel(logging.CRITICAL)  # the client's own warnings would break the one-line contract
+    # the client's own warnings and tracebacks (a lost scheduler is logged at ERROR by
+    # distributed.client, whose level Dask's logging config sets apart) would break the one-line
+    # contract: every distributed logger is quiet for the run, and restored afterwards
+    quiet = [logging.getLogger("distributed")] + [
+        logging.getLogger(name) for name in list(logging.Logger.manager.loggerDict) if name.startswith("distributed.")]
+    levels = [(logger, logger.level) for logger in quiet]
+    for logger in quiet:
+        logger.setLevel(logging.CRITICAL + 1)
     try:
         with dask.config.set({"distributed.comm.timeouts.connect": f"{timeout}s",
                               "distributed.worker.daemon": False}):
@@ -196,7 +199,8 @@ def verify_units(address: str, units: list[dict[str, Any]], versions: dict[str, 
             finally:
                 _close(client, cluster)
     finally:
-        quiet.setLevel(level)
+        for logger, level in levels:
+            logger.setLevel(level)
     run.seconds = time.perf_counter() - start
     return run
 
@@ -240,6 +244,7 @@ def _run(client, units, versions, store, progress, work, run: ClusterRun, addres
     from distributed.scheduler import KilledWorker
 
     shared = units[0].get("docs", {})
+    start = time.perf_counter()
     try:
         # the catalogue's documents once per run, as a task (not scattered data): when the worker
         # holding them dies, the scheduler computes them again instead of losing every unit
@@ -277,8 +282,12 @@ def _run(client, units, versions, store, progress, work, run: ClusterRun, addres
                 run.failures.append(f"{_unit_name(unit)}: {out['results'][0]['detail']}")
             _report(progress, run)
             fut.release()
+        run.run_seconds = time.perf_counter() - start
     except (OSError, TimeoutError, FutureCancelledError) as exc:
-        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        if isinstance(exc, FutureCancelledError):  # the client cancels every future when its scheduler is gone
+            reason = "the connection was lost" if "connection-lost" in str(exc) else "the run was cancelled"
+        else:
+            reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         raise ClusterError(f"--cluster {address}: lost the Dask scheduler after {run.done} of {run.units} "
                            f"unit(s) ({reason}); what was stored stays stored: run the command again to "
                            "resume") from None
