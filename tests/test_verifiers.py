@@ -46,6 +46,9 @@ MODULES = {
     "invariants": "invariants",
     "observers": "observers",
     "transforms": "transforms",
+    "petrov": "petrov",
+    "killing": "killing",
+    "energy-conditions": "energy_conditions",
 }
 
 
@@ -68,6 +71,7 @@ def test_registration_names_and_versions():
         expected = "2" if name in ("signature", "structure", "field-equations", "invariants") else "1"
         # limits version 3: a reduces-to target found nowhere is a failure of that limit, not skipped (issue 14)
         expected = "3" if name == "limits" else expected
+        # petrov, killing, energy-conditions: version 1, the declarations of issue 15
         assert obj.name == name and obj.version == expected
         assert callable(obj.check)
 
