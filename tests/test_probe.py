@@ -84,7 +84,14 @@ def test_norm_drift_over_100_orbits():
 
 def test_radial_fall_reaches_the_horizon_at_the_cycloid_time():
     R, M = 10.0, 1.0
-    out = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="radial")
+    # by default the fall stops 0.1% outside the horizon the orbits physics finds (r = 2M)
+    stopped = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="radial")
+    assert stopped["termination"] == "horizon" and stopped["horizons"] == [pytest.approx(2 * M, rel=1e-12)]
+    assert stopped["end"]["r"] == pytest.approx(2 * M * 1.001, rel=1e-10)
+    eta = math.acos(2 * stopped["end"]["r"] / R - 1)
+    assert stopped["tau"] == pytest.approx(math.sqrt(R**3 / (8 * M)) * (eta + math.sin(eta)), rel=1e-9)
+    # with --cross-horizons it runs on to the edge of the static chart's domain
+    out = run("schwarzschild", params="M=1", start="r=10,theta=pi/2", orbit="radial", cross_horizons=True)
     assert out["termination"] == "domain-edge" and "r > 2*M" in out["detail"]
     r_end = out["end"]["r"]
     assert 2 * M < r_end < 2 * M * (1 + 1e-4)
@@ -161,7 +168,7 @@ def test_cli_probe_old_params_spelling_still_works(cli, python_target):
 def test_cli_probe_entry_text_and_errors(empty_catalogue, python_target):
     cli = empty_catalogue
     assert cli("add", str(SPACETIMES / "schwarzschild.toml")).exit_code == 0
-    result = cli("probe", "schwarzschild", "--from", "r=10,theta=pi/2", "--orbit", "radial")
+    result = cli("probe", "schwarzschild", "--from", "r=10,theta=pi/2", "--orbit", "radial", "--cross-horizons")
     assert result.exit_code == 0, result.stderr
     assert "domain-edge" in result.stdout and "energy E = -p_t" in result.stdout
     bad = cli("probe", "schwarzschild", "--from", "r=10")

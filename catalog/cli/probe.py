@@ -1,4 +1,4 @@
-"""`gravicat probe`: integrate a timelike geodesic with the exported Python code and report drifts."""
+"""`gravicat probe`: follow a timelike or null geodesic or a charged particle; report where it ends and the drifts."""
 
 from __future__ import annotations
 
@@ -39,14 +39,37 @@ def probe(
                                             "default: the file's defaults).", show_default=False)] = None,
     params: Annotated[str | None, typer.Option("--params", hidden=True,
                                                help="Deprecated spelling of --set.")] = None,
-    orbit: Annotated[str, typer.Option("--orbit", help="circular, radial or custom.")] = "circular",
+    orbit: Annotated[str, typer.Option("--orbit", help="circular, radial or custom (timelike), or null.")]
+    = "circular",
     direction: Annotated[str, typer.Option("--direction", help="prograde or retrograde (circular orbits).")]
     = "prograde",
     velocity: Annotated[str | None, typer.Option("--velocity", help="Spatial components u^i, e.g. r=0,phi=0.04 "
                                                                     "(u^t follows from g(u,u) = -1).")] = None,
     azimuth: Annotated[str | None, typer.Option("--azimuth", help="The azimuthal coordinate (default: phi).")]
     = None,
-    tau: Annotated[float | None, typer.Option("--tau", help="Proper time to integrate over.")] = None,
+    impact: Annotated[float | None, typer.Option("--impact", help="Null: impact parameter b = L/E (E = 1); "
+                                                                  "the radial momentum follows from H = 0.")] = None,
+    theta_impact: Annotated[float | None, typer.Option("--theta-impact", help="Null, with --impact: p_theta/E at "
+                                                                              "the start (default 0).")] = None,
+    outgoing: Annotated[bool, typer.Option("--outgoing", help="Null, with --impact: start moving outwards "
+                                                              "(default inwards).")] = False,
+    charge: Annotated[float | None, typer.Option("--charge", help="Charge per unit mass q of a timelike particle "
+                                                                  "(radial or custom), in the entry's potential.")]
+    = None,
+    stop_radius: Annotated[float | None, typer.Option("--stop-radius", help="Stop when the radial coordinate "
+                                                                            "falls to R.")] = None,
+    escape_radius: Annotated[float | None, typer.Option("--escape-radius", help="Stop when the radial coordinate "
+                                                                                "rises to R (escape).")] = None,
+    stop_below: Annotated[list[str] | None, typer.Option("--stop-below", metavar="NAME=VALUE",
+                                                         help="Stop when coordinate NAME falls to VALUE "
+                                                              "(repeatable).", show_default=False)] = None,
+    stop_above: Annotated[list[str] | None, typer.Option("--stop-above", metavar="NAME=VALUE",
+                                                         help="Stop when coordinate NAME rises to VALUE "
+                                                              "(repeatable).", show_default=False)] = None,
+    cross_horizons: Annotated[bool, typer.Option("--cross-horizons", help="Do not stop on approach to a "
+                                                                          "horizon.")] = False,
+    tau: Annotated[float | None, typer.Option("--tau", help="Proper time (null: affine parameter) to integrate "
+                                                            "over.")] = None,
     orbits: Annotated[float | None, typer.Option("--orbits", help="Number of orbits (circular; default 10).")]
     = None,
     rtol: Annotated[float, typer.Option("--rtol", help="Relative tolerance of the integrator.")] = 1e-12,
@@ -59,7 +82,8 @@ def probe(
                                                                         "conserved momentum drifts more.")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")] = False,
 ) -> None:
-    """Integrate a timelike geodesic with the exported Python code; report the drift of g(u,u) + 1, E and L."""
+    """Follow a geodesic (timelike, null) or a charged particle; report where it ends and the drift of g(u,u) + 1
+    (or H), E and L."""
     from gravicat.physics.probe import probe as run_probe
     from gravicat.registry import exporters
 
@@ -72,7 +96,10 @@ def probe(
                        "(see 'gravicat plugins')")
     report = run_probe(doc, exporter, chart=chart, params=params, start=start, orbit=orbit, direction=direction,
                        velocity=velocity, azimuth=azimuth, tau=tau, orbits=orbits, rtol=rtol, atol=atol,
-                       max_steps=max_steps, max_cpu=max_cpu, context=context)
+                       max_steps=max_steps, max_cpu=max_cpu, context=context, impact=impact,
+                       theta_impact=theta_impact, outgoing=outgoing, charge=charge, stop_radius=stop_radius,
+                       escape_radius=escape_radius, stop_below=stop_below or (), stop_above=stop_above or (),
+                       cross_horizons=cross_horizons)
     problems = _problems(report, max_drift)
     if as_json:
         emit_json(report)
@@ -93,6 +120,8 @@ def _problems(report, max_drift) -> list[str]:
     if max_drift is not None:
         drift = report["drift"]
         worst = [("normalisation", drift["normalisation"])]
+        if "hamiltonian" in drift:
+            worst.append(("H", drift["hamiltonian"]))
         worst += [(f"p_{k}", v["max_rel_change"] if v["max_rel_change"] is not None else v["max_abs_change"])
                   for k, v in drift["conserved"].items()]
         for name, value in worst:
@@ -107,16 +136,29 @@ def _print(r) -> None:
                f"{r['code']}")
     if r["parameters"]:
         typer.echo("parameters: " + ", ".join(f"{k} = {v:.15g}" for k, v in r["parameters"].items()))
-    typer.echo(f"orbit: {r['orbit']} from " + ", ".join(f"{k}={v:.15g}" for k, v in r["start"].items()))
-    typer.echo("u = (" + ", ".join(f"{v:.15g}" for v in r["velocity"].values()) + f") in ({', '.join(coords)})")
+    kind = r["orbit"] + (f", charge q = {r['charge']:.15g} per unit mass" if "charge" in r else "")
+    typer.echo(f"orbit: {kind} from " + ", ".join(f"{k}={v:.15g}" for k, v in r["start"].items()))
+    name = "k" if r["kind"] == "null" else "u"
+    typer.echo(f"{name} = (" + ", ".join(f"{v:.15g}" for v in r["velocity"].values()) + f") in ({', '.join(coords)})")
+    if "impact" in r:
+        i = r["impact"]
+        typer.echo(f"impact: b = {i['b']:.15g}, theta impact {i['theta']:.15g}, {i['direction']}")
     if "circular" in r:
         c = r["circular"]
         parts = [f"{k} = {v:.15g}" for k, v in c.items() if isinstance(v, float) and k != "orbits"]
         typer.echo(f"circular ({c['direction']}): " + ", ".join(parts))
     typer.echo(f"{r['termination']}: {r['detail']}; {r['steps']} steps, {r['rhs_evaluations']} evaluations "
                f"(DOP853, rtol {r['integrator']['rtol']:g}, atol {r['integrator']['atol']:g})")
+    turning = r.get("turning_points", {"count": 0, "points": []})
+    if turning["count"]:
+        shown = ", ".join(f"{p['coordinate']} = {p['value']:.12g} ({p['kind']})" for p in turning["points"][:6])
+        more = f" and {turning['count'] - 6} more" if turning["count"] > 6 else ""
+        typer.echo(f"turning points: {shown}{more}")
     d = r["drift"]
-    rows = [["g(u,u) + 1", "", f"{d['normalisation']:.3e}", ""]]
+    if r["kind"] == "null":
+        rows = [["H = g(k,k)/2", "0", f"{d['hamiltonian']:.3e}", ""]]
+    else:
+        rows = [["g(u,u) + 1", "", f"{d['normalisation']:.3e}", ""]]
     for name, v in d["conserved"].items():
         label = f"p_{name}"
         if name == coords[0]:
@@ -128,5 +170,6 @@ def _print(r) -> None:
         rows.append([label, f"{value:.15g}", f"{v['max_abs_change']:.3e}", rel])
     for name, v in d.get("coordinates", {}).items():
         rows.append([f"{name} (circular orbit)", f"{r['start'][name]:.15g}", "", f"{v:.3e}"])
-    typer.echo(f"drift over {r['samples']} samples up to tau = {r['tau']:.12g}:")
+    lam = "lambda" if r["kind"] == "null" else "tau"
+    typer.echo(f"drift over {r['samples']} samples up to {lam} = {r['tau']:.12g}:")
     emit_table(rows, ["quantity", "value", "max abs change", "max rel change"])

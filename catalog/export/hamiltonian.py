@@ -23,6 +23,7 @@ Two outputs from the same expressions:
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -53,6 +54,8 @@ class HamiltonianSystem:
     derivative_exprs: dict
     metric_exprs: dict
     domain_exprs: list = field(default_factory=list)  # (text, margin expr, strict): margin > 0 inside
+    charge: float = 0.0  # charge per unit mass q of the particle: H = 1/2 g^ab (p_a - q A_a)(p_b - q A_b)
+    potential_exprs: dict = field(default_factory=dict)  # a -> A_a (covariant), only with a charge
     _fns: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -75,6 +78,9 @@ class HamiltonianSystem:
             elif kind == "metric":
                 outputs = [self.metric_exprs.get((a, b), 0) for a in range(self.n) for b in range(self.n)]
                 args = (xs,)
+            elif kind == "potential":
+                outputs = [self.potential_exprs.get(a, sympy.Integer(0)) for a in range(self.n)]
+                args = (xs,)
             elif kind == "inverse":
                 outputs = [self._ginv(a, b) for a in range(self.n) for b in range(self.n)]
                 args = (xs,)
@@ -89,25 +95,45 @@ class HamiltonianSystem:
 
         return self.inverse_exprs.get((min(a, b), max(a, b)), sympy.Integer(0))
 
+    def _kinetic(self, ps):
+        """The kinetic momenta P_a = p_a - q A_a (p_a themselves without a charge)."""
+        import sympy
+
+        if not self.charge:
+            return list(ps)
+        q = sympy.Float(self.charge, 17)
+        return [ps[a] - q * self.potential_exprs.get(a, 0) for a in range(self.n)]
+
     def _h_expr(self, ps):
         n = self.n
         import sympy
 
-        return sum(((1 if a == b else 2) * self._ginv(a, b) * ps[a] * ps[b]
+        P = self._kinetic(ps)
+        return sum(((1 if a == b else 2) * self._ginv(a, b) * P[a] * P[b]
                     for a in range(n) for b in range(a, n)), start=sympy.Integer(0)) / 2
 
     def _rhs_exprs(self, xs, ps):
+        """dx^a/dl = g^ab P_b, dp_c/dl = -1/2 d_c g^ab P_a P_b + q (d_c A_b) g^bd P_d with P = p - q A
+        (P = p without a charge: the geodesic equations)."""
         import sympy
 
         n = self.n
-        dx = [sum((self._ginv(a, b) * ps[b] for b in range(n)), start=sympy.Integer(0)) for a in range(n)]
+        P = self._kinetic(ps)
+        dx = [sum((self._ginv(a, b) * P[b] for b in range(n)), start=sympy.Integer(0)) for a in range(n)]
         dp = []
         for c in range(n):
             acc = sympy.Integer(0)
             for (c2, a, b), d in self.derivative_exprs.items():
                 if c2 == c:
-                    acc += (1 if a == b else 2) * d * ps[a] * ps[b]
-            dp.append(-acc / 2)
+                    acc += (1 if a == b else 2) * d * P[a] * P[b]
+            force = sympy.Integer(0)
+            if self.charge:
+                q = sympy.Float(self.charge, 17)
+                for b, A in self.potential_exprs.items():
+                    dA = sympy.diff(A, xs[c])
+                    if dA != 0:
+                        force += q * dA * dx[b]
+            dp.append(-acc / 2 + force)
         return dx + dp
 
     @staticmethod
@@ -141,6 +167,12 @@ class HamiltonianSystem:
 
         return self._arrays(self._compiled("inverse")(tuple(x)), np.shape(x[0])).reshape(self.n, self.n, -1)
 
+    def potential(self, x):
+        """A_a at the points ``x`` (shape ``(n, N)``; ``(n,)`` for one point); zero without a charge."""
+        import numpy as np
+
+        return self._arrays(self._compiled("potential")(tuple(x)), np.shape(x[0]))
+
     def domain_margins(self, x):
         """One row per domain relation of the chart (shape ``(k, N)``): > 0 strictly inside."""
         import numpy as np
@@ -149,14 +181,18 @@ class HamiltonianSystem:
 
 
 def hamiltonian_system(spec, values: Mapping[Any, Any], *, budget: float = DEFAULT_BUDGET,
-                       source: str | None = None, skip_domain: tuple[str, ...] = ()) -> HamiltonianSystem:
+                       source: str | None = None, skip_domain: tuple[str, ...] = (),
+                       charge: float = 0.0) -> HamiltonianSystem:
     """The :class:`HamiltonianSystem` of a chart (``ChartSpec``) with every parameter given a number.
 
     ``values`` maps parameter symbols (or names) to numbers (sympy or Python). The exact inverse
     comes from the engine within ``budget`` CPU seconds. Domain relations whose only coordinates
     are in ``skip_domain`` (e.g. ``0 < theta < pi``, an axis a ray may cross) are not margins.
+    A nonzero ``charge`` (per unit mass) adds the chart's declared electromagnetic potential A_a
+    (the metric file's ``potential``, as the field-equation claims read it) through p_a - q A_a.
     Raises :class:`InputError` naming the chart for a degenerate metric, arbitrary functions, an
-    inverse beyond the budget or a parameter without a value. Cached per chart and values.
+    inverse beyond the budget, a parameter without a value, or a charge on a chart without a
+    potential. Cached per chart, values and charge.
     """
     import sympy
 
@@ -169,12 +205,17 @@ def hamiltonian_system(spec, values: Mapping[Any, Any], *, budget: float = DEFAU
     if missing:
         raise InputError(where, missing[0], "no value given")
     key = (spec.entry, spec.chart, str(spec.metric), tuple(sorted((k, str(v)) for k, v in byname.items())),
-           tuple(skip_domain))
+           tuple(skip_domain), float(charge))
     if key in _CACHE:
         return _CACHE[key]
     if spec.functions:
         raise InputError(where, field_name, f"the metric depends on the arbitrary function(s) "
                                             f"{', '.join(map(str, spec.functions))}; geodesics need numbers")
+    if charge and spec.potential is None:
+        raise InputError(where, f"{field_name}.potential", "the chart declares no electromagnetic potential; "
+                                                           "a charged particle needs one")
+    if not math.isfinite(charge):
+        raise InputError("--charge", None, f"{charge} is not a finite charge per unit mass")
     geom = Geometry(spec, budget=budget)
     reason = geom.degeneracy()
     if reason:
@@ -215,9 +256,20 @@ def hamiltonian_system(spec, values: Mapping[Any, Any], *, budget: float = DEFAU
         op = rel.rel_op
         margin = rel.lhs - rel.rhs if op in (">", ">=") else rel.rhs - rel.lhs
         domain.append((str(rel), sympy.sympify(margin).xreplace(rename), op in (">", "<")))
+    potential = {}
+    if charge:
+        for a, A in enumerate(spec.potential):
+            e = sympy.sympify(A).xreplace(rename)
+            if e != 0:
+                potential[a] = e
+        stray = set().union(*(e.free_symbols for e in potential.values())) - set(xs) if potential else set()
+        if stray:
+            raise InputError(where, f"{field_name}.potential", f"the potential still holds "
+                                                               f"{', '.join(sorted(map(str, stray)))}")
     system = HamiltonianSystem(entry=spec.entry, chart=spec.chart, coords=tuple(str(c) for c in spec.coords),
                                values={k: float(sympy.sympify(v)) for k, v in byname.items()},
-                               inverse_exprs=inv, derivative_exprs=derivs, metric_exprs=metric, domain_exprs=domain)
+                               inverse_exprs=inv, derivative_exprs=derivs, metric_exprs=metric, domain_exprs=domain,
+                               charge=float(charge), potential_exprs=potential)
     if len(_CACHE) > 16:
         _CACHE.clear()
     _CACHE[key] = system

@@ -15,7 +15,11 @@ vectors d/dx^k): the energy E = -p_t when the time coordinate is one of them and
 momentum L = p_phi for the azimuth. The integration stops just before the orbit reaches the
 edge of the chart's domain (a horizon, an axis: an event on the domain margins, 1e-6 inside), on
 approach to a horizon where the time coordinate is singular (u^t beyond 1e6 times its start value),
-and at a cap on the integrator's steps (default 200000) or CPU time (default 60 s).
+and at a cap on the integrator's steps (default 200000) or CPU time (default 60 s). The stopping events
+of :mod:`gravicat.physics.probe_stops` (a radius, escape beyond a radius, approach to a horizon the orbits
+physics knows, a coordinate range) and the turning points of the radial and polar coordinates are shared
+with the Hamiltonian integration of null geodesics and charged particles
+(:mod:`gravicat.physics.probe_rays`).
 
 Orbits:
 
@@ -34,13 +38,15 @@ from __future__ import annotations
 
 import math
 import time
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 from gravicat.checks import ExportContext
 from gravicat.errors import InputError
+from gravicat.physics import probe_stops
+from gravicat.physics.probe_stops import StopRequest
 
-ORBITS = ("circular", "radial", "custom")
+ORBITS = ("circular", "radial", "custom", "null")
 DIRECTIONS = ("prograde", "retrograde")
 DEFAULT_ORBITS = 10
 DEFAULT_TAU = 100.0
@@ -119,8 +125,19 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
           direction: str = "prograde", velocity: str | None = None, azimuth: str | None = None,
           tau: float | None = None, orbits: float | None = None, rtol: float = 1e-12, atol: float = 1e-12,
           max_steps: int = MAX_STEPS, max_cpu: float = MAX_CPU,
-          context: ExportContext | Mapping[str, Any] | None = None, params_option: str = "--set") -> dict[str, Any]:
-    """Integrate one timelike geodesic and report drifts (the JSON shape of ``gravicat probe --json``).
+          context: ExportContext | Mapping[str, Any] | None = None, params_option: str = "--set",
+          impact: float | None = None, theta_impact: float | None = None, outgoing: bool = False,
+          charge: float | None = None, stop_radius: float | None = None, escape_radius: float | None = None,
+          stop_below: Sequence[str] = (), stop_above: Sequence[str] = (),
+          cross_horizons: bool = False) -> dict[str, Any]:
+    """Integrate one orbit and report drifts (the JSON shape of ``gravicat probe --json``).
+
+    A timelike geodesic (``circular``, ``radial``, ``custom``) is integrated here with the exported
+    Christoffel symbols; a null geodesic (``orbit="null"``, with ``velocity`` or ``impact``) or a charged
+    particle (``charge``, radial or custom) in Hamiltonian form by :mod:`gravicat.physics.probe_rays`.
+    Both stop on the events of :mod:`gravicat.physics.probe_stops` (``stop_radius``, ``escape_radius``,
+    ``stop_below``/``stop_above`` NAME=VALUE texts, a horizon known from the orbits physics unless
+    ``cross_horizons``).
 
     The integration stops at the edge of the chart's domain, on approach to a horizon of the time coordinate
     (u^t beyond HORIZON_GROWTH times its start value), after ``max_steps`` accepted steps or after ``max_cpu``
@@ -169,6 +186,33 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
     if missing:
         raise InputError("--from", missing[0], f"give a value for {missing[0]} (the metric depends on it)")
     x0 = np.array([float(given.get(c, 0)) for c in coords])
+    if not math.isfinite(float(charge or 0.0)):
+        raise InputError("--charge", None, f"{charge} is not a finite charge per unit mass")
+    if charge and orbit in ("circular", "null"):
+        raise InputError("--charge", None, "a charged particle is followed on a radial or custom orbit "
+                                           "(circular orbits are geodesics; light carries no charge)")
+    if orbit != "null":
+        for name, value in (("--impact", impact), ("--theta-impact", theta_impact), ("--outgoing", outgoing)):
+            if value:
+                raise InputError(name, None, "only for a null geodesic (--orbit null)")
+    request = StopRequest(stop_radius=stop_radius, escape_radius=escape_radius, below=tuple(stop_below or ()),
+                          above=tuple(stop_above or ()), cross_horizons=cross_horizons)
+    if orbit == "null" or charge:
+        from gravicat.physics.probe_rays import probe_rays
+
+        if orbits is not None:
+            raise InputError("--orbits", None, "only a circular orbit is counted in orbits; give --tau")
+        if azimuth:
+            psi = _azimuth(coords, killing, azimuth)
+        else:
+            try:
+                psi = _azimuth(coords, killing, None)
+            except InputError:
+                psi = None
+        return probe_rays(document, exporter, context, chart=chart, spec=spec, values=values, coords=coords, x0=x0,
+                          killing=killing, env=env, psi=psi, orbit=orbit, velocity=velocity, impact=impact,
+                          theta_impact=theta_impact, outgoing=outgoing, charge=float(charge or 0.0), tau=tau,
+                          rtol=rtol, atol=atol, max_steps=max_steps, max_cpu=max_cpu, stops_request=request)
     module = exported_module(document, exporter, context)
     order = tuple(module.PARAMETERS)
     p = tuple(pvals[name] for name in order)
@@ -224,7 +268,10 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         u = y[n:]
         return np.concatenate([u, -(gam @ u) @ u])
 
-    events = []
+    plan = probe_stops.plan(document, spec, values, coords, x0, request, env)
+    events, stops, turning = probe_stops.events(plan, lambda y: y[n:], n)
+    extra = events[len(stops):]  # turning points (not terminal): after the terminal events
+    events = events[:len(stops)]
     edge = EDGE * (1.0 + float(np.max(np.abs(x0))))
     if len(module.DOMAIN):
         def leaves(_t, y):
@@ -239,24 +286,32 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         return ut_limit - value if math.isfinite(value) else -1.0
 
     horizon.terminal, horizon.direction = True, -1
+    horizon_at = len(events)
     events.append(horizon)
     caps = _Caps(max_steps, max_cpu, tau)
+    caps_at = len(events)
     events.append(caps)
+    turn_at = len(events)
+    events.extend(extra)
     started = time.perf_counter()
     with np.errstate(all="ignore"):
         sol = solve_ivp(rhs, (0.0, tau), np.concatenate([x0, u0]), method="DOP853", rtol=rtol, atol=atol,
                         events=events or None, dense_output=True)
     seconds = time.perf_counter() - started
+    stop = probe_stops.fired(sol, 0, stops)
     if sol.status == -1:
         termination, detail = "failed", f"{sol.message} (at tau = {sol.t[-1]:.12g}, {_show(coords, sol.y[:n, -1])})"
-    elif sol.status == 1 and caps.reason is not None and len(sol.t_events[-1]):
+    elif sol.status == 1 and caps.reason is not None and len(sol.t_events[caps_at]):
         termination = caps.reason
         what = (f"the step cap of {max_steps} steps" if caps.reason == "step-limit"
                 else f"the CPU-time cap of {max_cpu:g} s")
         option = "--max-steps" if caps.reason == "step-limit" else "--max-cpu"
         detail = (f"stopped by {what} at tau = {sol.t[-1]:.12g} of {tau:.12g}, {_show(coords, sol.y[:n, -1])}; "
                   f"raise {option} or shorten --tau")
-    elif sol.status == 1 and len(sol.t_events[-2]):
+    elif stop is not None:
+        termination = stop.termination
+        detail = probe_stops.detail(stop, coords, float(sol.t[-1]), sol.y[:n, -1])
+    elif sol.status == 1 and len(sol.t_events[horizon_at]):
         termination = "horizon"
         detail = (f"approached a horizon: u^{coords[0]} = {abs(sol.y[n, -1]):.6g} grew beyond {HORIZON_GROWTH:g} "
                   f"times its start value at tau = {sol.t[-1]:.12g}, {_show(coords, sol.y[:n, -1])} "
@@ -303,10 +358,15 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         "code": f"exporter {exporter.name} {exporter.version}, inverse {module.INVERSE}",
         "parameters": {name: pvals[name] for name in pvals},
         "orbit": orbit,
+        "kind": "timelike",
+        "parameter": "proper time",
         "azimuth": coords[psi] if psi is not None else None,
         "start": dict(zip(coords, map(float, x0), strict=True)),
         "velocity": dict(zip(coords, map(float, u0), strict=True)),
+        "momentum": dict(zip(coords, map(float, g0 @ u0), strict=True)),
         "end": dict(zip(coords, map(float, sol.y[:n, -1]), strict=True)),
+        "end_velocity": dict(zip(coords, map(float, sol.y[n:, -1]), strict=True)),
+        "end_momentum": dict(zip(coords, map(float, module.metric(sol.y[:n, -1], p) @ sol.y[n:, -1]), strict=True)),
         "extent": {c: [float(np.min(xs[:, i])), float(np.max(xs[:, i]))] for i, c in enumerate(coords)},
         **result,
         "tau_requested": float(tau),
@@ -318,6 +378,10 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         "rhs_evaluations": int(sol.nfev),
         "integrator": {"method": "DOP853", "rtol": rtol, "atol": atol, "max_steps": max_steps,
                        "max_cpu_seconds": max_cpu},
+        "stops": [{"termination": st.termination, "coordinate": coords[st.index], "value": st.value,
+                   "reason": st.reason} for st in stops],
+        "horizons": plan.horizons,
+        "turning_points": probe_stops.turning_points(sol, turn_at, turning, coords),
         "drift": drift,
         "seconds": round(seconds, 3),
     }
