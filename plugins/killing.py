@@ -2,7 +2,7 @@
 
 * ``killing:NAME`` (a vector xi^a): Killing's equation ``(L_xi g)_ab = 0`` (Wald, General Relativity,
   1984, eq. C.2.8), every component;
-* ``killing-tensor:NAME`` (a symmetric K_ab, or K^ab lowered with the metric): the Killing tensor
+* ``killing:tensor:NAME`` (a symmetric K_ab, or K^ab lowered with the metric): the Killing tensor
   equation ``nabla_(a K_bc) = 0`` (Walker & Penrose, Commun. Math. Phys. 18 (1970) 265, for Kerr's).
 
 The residuals are :mod:`gravicat.physics.killing`'s (the engine's derivatives and Christoffel
@@ -38,7 +38,7 @@ class KillingCheck:
             out.append(self._vector(geometry, name, xi))
         skipped = skipped_if_degenerate(geometry, self.name, self, "the Christoffel symbols")
         for name, t in tensors.items():
-            check = f"{self.name}-tensor:{name}"
+            check = f"{self.name}:tensor:{name}"
             if skipped is not None:
                 out.append(result(check, "skipped", "none", skipped.detail, self))
                 continue

@@ -180,7 +180,7 @@ def test_carters_killing_tensor_passes_and_a_wrong_sign_is_caught():
         "carter": {"indices": "lower", "components": carter(+1)},
         "wrong-sign": {"indices": "lower", "components": carter(-1)}})
     res = _run("killing", doc, "boyer-lindquist")
-    good, bad = res["killing-tensor:carter"], res["killing-tensor:wrong-sign"]
+    good, bad = res["killing:tensor:carter"], res["killing:tensor:wrong-sign"]
     assert good.status == Status.PASS and good.method == Method.SYMBOLIC, good.detail
     assert bad.status == Status.FAIL and bad.counterexample["point"], bad.detail
 
@@ -195,8 +195,8 @@ def test_a_killing_tensor_with_upper_indices_is_lowered_with_the_metric():
         "metric": {"indices": "upper", "components": inverse},
         "scaled": {"indices": "upper", "components": scaled}})
     res = _run("killing", doc, "schwarzschild")
-    assert res["killing-tensor:metric"].status == Status.PASS
-    assert res["killing-tensor:scaled"].status == Status.FAIL and res["killing-tensor:scaled"].counterexample
+    assert res["killing:tensor:metric"].status == Status.PASS
+    assert res["killing:tensor:scaled"].status == Status.FAIL and res["killing:tensor:scaled"].counterexample
 
 
 # -- energy-conditions ---------------------------------------------------------------------------------
