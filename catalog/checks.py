@@ -106,6 +106,10 @@ class PreparedChart(Protocol):
 
     # -- the chart
     spec: Any  #: the ChartSpec (metric, coords, params, domain, claims; ``spec.entry``, ``spec.chart``)
+    #: ``spec.extra.get("declarations")``: the chart's declared statements, or None when it declares none:
+    #: ``{"petrov-type": "D", "killing": {name: (xi^a sympy, ...)}, "killing-tensors": {name: {"indices":
+    #: "lower" | "upper", "components": sympy Matrix}}, "energy-conditions": {"null": "holds" | "violated", ...}}``
+    #: (only the keys declared; :mod:`gravicat.format.declarations`)
     coords: tuple  #: coordinate symbols (sympy), in chart order
     params: tuple  #: parameter symbols (sympy), in file order
     n: int  #: dimension
