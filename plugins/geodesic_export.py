@@ -56,6 +56,8 @@ def _prepared(document, context, exporter):
 
 
 class GeodesicCExporter:
+    """C99 header: the geodesic right-hand side in Hamiltonian form and H for N rays."""
+
     name = "geodesic-c"
     version = "1"
     suffix = ".h"
@@ -101,6 +103,8 @@ class GeodesicCExporter:
 
 
 class GeodesicNumpyExporter:
+    """Python module (numpy only): the geodesic right-hand side in Hamiltonian form and H, vectorised over rays."""
+
     name = "geodesic-numpy"
     version = "1"
     suffix = ".py"

@@ -183,3 +183,18 @@ def test_parameters_are_numbers_and_refusals():
         GeodesicCExporter().export(schw, _context(schw, "kruskal-szekeres", None))
     numpy_text = GeodesicNumpyExporter().export(schw, _context(schw, "kruskal-szekeres", None))
     assert "def _lambertw(z):" in numpy_text
+
+
+def test_cli_lists_and_writes_the_geodesic_targets(cli, tmp_path):
+    listed = cli("export", "--list")
+    assert listed.exit_code == 0
+    assert {"geodesic-c", "geodesic-numpy"} <= {line.split("\t")[0] for line in listed.stdout.splitlines()}
+    source = str(bundled_path("kerr"))
+    refused = cli("export", source, "--to", "geodesic-c")
+    assert refused.exit_code == 2 and refused.stderr.count("\n") == 1 and "--allow-unverified" in refused.stderr
+    out = tmp_path / "kerr_rays.py"
+    done = cli("export", source, "--to", "geodesic-numpy", "--set", "M=1,a=0.9", "--allow-unverified",
+               "-o", str(out))
+    assert done.exit_code == 0, done.stderr
+    module = _load(out)
+    assert module.PARAMETERS == {"M": 1.0, "a": 0.9} and module.COORDINATES == ("t", "r", "theta", "phi")
