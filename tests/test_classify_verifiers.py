@@ -240,3 +240,25 @@ def test_alcubierre_negative_energy_density():
 def test_undeclared_charts_are_skipped(name):
     res = _run(name, _declare("minkowski", "cartesian"), "cartesian")
     assert [r.status for r in res.values()] == [Status.SKIPPED]
+
+
+def test_declarations_on_a_chart_off_the_fast_path_get_an_answer():
+    # r**2 > 4 M**2 does not settle the sign of r, so Abs(r) keeps the chart on the sympy path; each declaration
+    # still gets pass, skipped or an honest inconclusive, never a crash (Schwarzschild: type D, d/dt Killing,
+    # vacuum: Stephani et al. 2003, sec. 15.4; Wald 1984, sec. C.3)
+    import importlib
+
+    import sympy as sp
+    from _charts import M, chart, ph, r, sph, t, th
+
+    f = 1 - 2 * M / sp.Abs(r)
+    decl = {"petrov-type": "D", "killing": {"d-t": (1, 0, 0, 0), "d-phi": (0, 0, 0, 1)},
+            "killing-tensors": {"metric": {"indices": "lower", "components": sp.ImmutableMatrix(sph(-f, 1 / f))}},
+            "energy-conditions": {"null": "holds"}}
+    spec = chart((t, r, th, ph), sph(-f, 1 / f), (M,), domain=(r**2 > 4 * M**2, th > 0, th < sp.pi),
+                 ranges=(M > 0,), extra={"declarations": decl})
+    assert Geometry(spec, budget=0.5).path == "sympy"
+    for name in ("petrov", "killing", "energy_conditions"):
+        (verifier,) = importlib.import_module(f"gravicat.plugins.{name}").register_verifiers()
+        for res in verifier.check(Geometry(spec, budget=0.5)):
+            assert res.status in (Status.PASS, Status.INCONCLUSIVE), (res.check, res.status, res.detail)
