@@ -102,6 +102,30 @@ def test_only_and_page_content(small, tmp_path):
     rep = _build(small, out)
     assert sorted(rep.rendered) == ["flrw-flat", "minkowski", "schwarzschild"] and rep.removed == []
     assert 'href="minkowski.html' in (out / "entries/schwarzschild.html").read_text()
+    # a cosmology has no orbit section, and its page says why
+    flrw = (out / "entries/flrw-flat.html").read_text()
+    assert 'id="orbits"' in flrw and "not tagged stationary or static" in flrw and "<figure>" not in flrw
+
+
+def test_a_figure_wherever_circular_orbits_exist_else_the_reason():
+    """The effective-potential figure is drawn for every stationary entry with a prograde circular
+    equatorial geodesic, with or without an ISCO; without one, or where the orbit model does not apply,
+    the section says why."""
+    from gravicat.api.site.parts import orbit_section
+    from gravicat.format.bundled import read_bundled
+
+    # Inside a uniform-density star every radius has a circular orbit (Newtonian limit: the field of a
+    # homogeneous sphere grows linearly with r; Binney and Tremaine, Galactic Dynamics, 2nd ed. 2008,
+    # sec. 2.2.2; recalled from memory), so there is no ISCO and still a figure.
+    star = orbit_section(read_bundled(bundled_path("interior-schwarzschild")))
+    assert star["svg"].startswith(b"<?xml") and star["figure_note"] is None and "ISCO" in star["html"]
+    # BTZ has no timelike circular geodesics (Cruz, Martinez and Pena, Geodesic structure of the (2+1)-
+    # dimensional BTZ black hole, Class. Quantum Grav. 11, 1994; recalled from memory)
+    btz = orbit_section(read_bundled(bundled_path("btz")))
+    assert btz["svg"] is None and btz["figure_note"].startswith("no prograde circular equatorial geodesic")
+    # Taub-NUT is not reflection-symmetric about the equator: the orbit model refuses it and says so
+    nut = orbit_section(read_bundled(bundled_path("taub-nut")))
+    assert "svg" not in nut and "not reflection-symmetric" in nut["error"]
 
 
 def test_out_dir_must_be_a_folder_or_an_earlier_site(small, tmp_path):

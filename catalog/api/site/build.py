@@ -31,10 +31,12 @@ from typing import Any
 from gravicat.errors import InputError, NotFound
 
 SITE_FORMAT = "gravicat-site/1"
-RENDERER_VERSION = "1"  # bump when a page changes shape: every entry is rendered again
+RENDERER_VERSION = "2"  # bump when a page changes shape: every entry is rendered again
 MANIFEST = "manifest.json"
 ENTRY_CPU_SECONDS = 120.0  # one entry's computed parts (MathML, orbits, exports) in a forked child
 STATIONARY_TAGS = frozenset({"stationary", "static"})
+NOT_STATIONARY = ("the entry is not tagged stationary or static: circular orbits, their landmarks and the effective "
+                  "potential are drawn for time-independent metrics only")
 _ACCEPTED = ("pass", "skipped", "inconclusive")  # statuses that may be exported (as `export` decides)
 
 
@@ -128,6 +130,8 @@ def compute_entry(e: dict[str, Any], exporters: dict[str, Any]) -> dict[str, Any
         if svg:
             out["figure"] = f"figures/{slug}.svg"
             out["files"][out["figure"]] = svg
+    else:  # the page says why there is no orbit section
+        out["orbits"] = {"error": NOT_STATIONARY}
     if e["status"] in _ACCEPTED:
         dl = parts.downloads(doc, exporters=exporters, revision=e["hash"],
                              checks=[{**r, "seconds": 0.0} for r in e["results"]],
@@ -260,9 +264,8 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
             why = (f"the computation reached its CPU-time cap of {cpu_seconds:g} s" if oc.limit == "cpu"
                    else f"the computation stopped ({oc.limit or oc.error or 'the child ended'})")
             report.problems.append(f"{e['slug']}: {why}")
-            computed = {"failure": why, "files": {}}
-            if STATIONARY_TAGS & set(e["document"]["tags"]):
-                computed["orbits"] = None
+            computed = {"failure": why, "files": {},
+                        "orbits": None if STATIONARY_TAGS & set(e["document"]["tags"]) else {"error": NOT_STATIONARY}}
         made = _render(e, computed, present)
         for rel, data in sorted(made.items()):
             _write(out, rel, data, old["files"], report)

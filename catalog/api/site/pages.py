@@ -250,8 +250,8 @@ def entry_html(e: dict[str, Any], computed: dict[str, Any], present: set[str]) -
                            f"width=\"700\" height=\"420\"><figcaption>Effective potential (chart "
                            f"<code>{escape(orb['chart'])}</code>, parameters at their defaults)</figcaption></figure>")
             else:
-                out.append(unavailable("effective-potential figure: no circular orbit to take an angular "
-                                       "momentum from"))
+                out.append(unavailable("effective-potential figure: " + (orb.get("figure_note") or "no circular "
+                                       "orbit to take an angular momentum from")))
         out.append("</section>")
     out.append(f"<section id=\"history\"><h2>History</h2>{_history(e['history'])}</section>")
     out.append("<section id=\"downloads\"><h2>Downloads</h2>")

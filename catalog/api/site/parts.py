@@ -107,16 +107,14 @@ def orbit_section(doc) -> dict[str, Any]:
         except (ArithmeticError, ValueError) as exc:  # numerical trouble in a library: shown, never a result
             first_reason = first_reason or f"chart {chart}: the numerical survey failed ({type(exc).__name__})"
             continue
+        note = None
         try:
-            svg = potential_svg(model, report)
+            svg, note = potential_svg(model, report)
         except ImportError:
-            svg = None
-            report.setdefault("notes", []).append("no figure: matplotlib is not installed "
-                                                  "(pip install 'gravicat[plot]')")
+            svg, note = None, "matplotlib is not installed (pip install 'gravicat[plot]')"
         except (CatalogError, ArithmeticError, ValueError) as exc:
-            svg = None
-            report.setdefault("notes", []).append(f"no figure: {exc}")
-        return {"chart": chart, "html": _landmarks_html(report, chart), "svg": svg}
+            svg, note = None, f"the figure could not be drawn ({exc})"
+        return {"chart": chart, "html": _landmarks_html(report, chart), "svg": svg, "figure_note": note}
     return {"error": first_reason or "the entry has no chart"}
 
 
@@ -148,26 +146,46 @@ def _landmarks_html(rep: dict[str, Any], chart: str) -> str:
             + (f"<ul class=\"notes\">{notes}</ul>" if notes else ""))
 
 
-def potential_svg(model, report: dict[str, Any]) -> bytes | None:
+def _orbit_radii(model, report: dict[str, Any], start: float, edge: float) -> tuple[list[float], float, str | None]:
+    """Radii of prograde circular orbits to take angular momenta from, the outer end of the plot, and
+    why there are none (when the list is empty). With an ISCO: the ISCO and 1.5 and 3 times its radius.
+    Else the radii where the orbit library finds a circular geodesic (a star's interior, a rotating
+    dust cylinder, a cosmology with static observers...), three spread over that range."""
+    import numpy as np
+
+    isco = report["isco"]["prograde"]
+    if isco:
+        return [isco * f for f in (1.0, 1.5, 3.0)], min(edge, isco * 6), None
+    found = [float(r) for r in np.geomspace(start, edge * 0.9995, 48)
+             if model.circular(float(r), "prograde").get("exists")]
+    if not found:
+        r = report["coordinates"]["radial"]
+        return [], edge, (f"no prograde circular equatorial geodesic for {r} in ({start:.6g}, {edge:.6g}) at the "
+                          "parameter defaults, so no angular momentum to draw the potential for")
+    picks = sorted({found[(len(found) - 1) * k // 4] for k in (1, 2, 3)})
+    return picks, min(edge, max(found[-1] * 1.5, picks[-1] * 3)), None
+
+
+def potential_svg(model, report: dict[str, Any]) -> tuple[bytes | None, str | None]:
     """The effective potential E(r) = V(r; L) of equatorial timelike geodesics for the angular momenta of
-    circular orbits at a few radii (landmarks marked), as deterministic SVG bytes; None when there is
-    no circular orbit to take L from."""
+    circular orbits at a few radii (landmarks marked), as deterministic SVG bytes, and None; or None and
+    the reason there is no figure (no circular orbit to take L from, or none gives a finite curve)."""
     import matplotlib
     import numpy as np
     from matplotlib.backends.backend_svg import FigureCanvasSVG
     from matplotlib.figure import Figure
 
     lo = model.inner_edge
-    isco = report["isco"]["prograde"]
     start = lo * 1.0005 if lo > 0 else model.scale * 1e-3
-    anchor = isco if isco else max(start * 3, 6 * model.scale)
-    top = min(model.outer_edge, anchor * 6) if math.isfinite(model.outer_edge) else anchor * 6
+    edge = model.outer_edge
+    radii, top, reason = _orbit_radii(model, report, start, edge)
+    if reason:
+        return None, reason
     if not top > start:
-        return None
+        return None, f"the radial range ({start:.6g}, {top:.6g}) is empty"
     r = np.geomspace(start, top, 600)
     curves = []
-    for factor in (1.0, 1.5, 3.0):
-        radius = anchor * factor
+    for radius in radii:
         if not start < radius < top:
             continue
         orbit = model.circular(radius, "prograde")
@@ -179,7 +197,8 @@ def potential_svg(model, report: dict[str, Any]) -> bytes | None:
             continue
         curves.append((radius, L, v))
     if not curves:
-        return None
+        return None, (f"the effective potential is not finite on ({start:.6g}, {top:.6g}) for the angular momenta of "
+                      f"the circular orbits at r = {', '.join(f'{x:.6g}' for x in radii)}")
     with matplotlib.rc_context({"svg.hashsalt": "gravicat-site", "svg.fonttype": "path",
                                 "path.simplify": False}):
         fig = Figure(figsize=(7, 4.2))
@@ -205,7 +224,7 @@ def potential_svg(model, report: dict[str, Any]) -> bytes | None:
         ax.set_title(f"chart {report['chart']}: prograde equatorial geodesics", fontsize=9)
         buf = io.BytesIO()
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "gravicat"})
-    return buf.getvalue()
+    return buf.getvalue(), None
 
 
 # --------------------------------------------------------------------------- downloads
