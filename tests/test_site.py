@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 import pytest
+from pg import pg_url  # noqa: F401  (fixture)
 from sqlalchemy.orm import Session
 
 from gravicat.api.catalogue import Catalogue
@@ -138,3 +139,34 @@ def test_out_dir_must_be_a_folder_or_an_earlier_site(small, tmp_path):
     with pytest.raises(InputError, match="not empty"):
         _build(small, busy)
     assert (busy / "mine.txt").read_text() == "keep"
+
+
+def test_cli_site_on_postgresql(pg_url, cli, tmp_path):  # noqa: F811
+    """`gravicat site OUT --db URL` renders a group's PostgreSQL catalogue (a real server, tests/pg.py)."""
+    with Catalogue(pg_url) as cat:
+        cat.init(bundled=False)
+        for slug in ("minkowski", "kasner"):
+            cat.add(bundled_path(slug), author="site test")
+    out = tmp_path / "site"
+    done = cli("site", str(out), "--db", pg_url, "--json")  # the global --db is the test's SQLite file
+    assert done.exit_code == 0, done.stderr
+    report = json.loads(done.stdout)
+    assert report["entries"] == 2 and sorted(report["rendered"]) == ["kasner", "minkowski"]
+    assert report["index_written"] and report["problems"] == []
+    assert "Kasner" in (out / "entries/kasner.html").read_text() and 'href="entries/minkowski.html"' in (
+        out / "index.html").read_text()
+    again = cli("site", str(out), "--db", pg_url)
+    assert again.exit_code == 0 and "2 unchanged; 0 files written (index unchanged)" in again.stdout
+
+
+def test_cli_site_only(small, cli, tmp_path):
+    out = tmp_path / "site"
+    done = cli("site", str(out), "--only", "minkowski", "--only", "minkowski", db=small)
+    assert done.exit_code == 0, done.stderr
+    assert done.stdout.startswith("site: 1 entries, 1 rendered, 0 unchanged;")
+    assert sorted(p.name for p in (out / "entries").iterdir()) == ["minkowski.html"]
+    assert (out / "index.html").read_text().count("<tr data-text=") == 1
+    bad = cli("site", str(out), "--only", "no-such-entry", db=small)
+    assert bad.exit_code == 2 and bad.stderr.strip() == ("Error: --only: no entry 'no-such-entry' in the catalogue "
+                                                         "(see 'gravicat list')")
+    assert sorted(p.name for p in (out / "entries").iterdir()) == ["minkowski.html"]  # nothing lost
