@@ -17,7 +17,11 @@ SETTINGS = {
     "disable_plugins": ("GRAVICAT_DISABLE_PLUGINS", "disable-plugins"),
     "author": ("GRAVICAT_AUTHOR", "author"),
     "cluster": ("GRAVICAT_CLUSTER", "cluster"),
+    "memory_cap": ("GRAVICAT_MEMORY_CAP", "memory-cap"),
 }
+
+_UNITS = {"": 1, "b": 1, "kib": 1024, "mib": 1024**2, "gib": 1024**3, "tib": 1024**4,
+          "kb": 1000, "mb": 1000**2, "gb": 1000**3, "tb": 1000**4}
 
 
 @dataclass(frozen=True)
@@ -26,6 +30,29 @@ class Settings:
     disable_plugins: tuple[str, ...] = field(default=())
     author: str = ""
     cluster: str = ""  # a Dask scheduler address or local:N for 'verify'; "" = local forked children
+    # bytes of address space each child process may add to what it inherits; 0 = no cap,
+    # None = the runner's default (gravicat.engine.fork.DEFAULT_MEMORY_CAP_BYTES, 3 GiB)
+    memory_cap: int | None = None
+
+
+def parse_memory_cap(value, where: str) -> int:
+    """A ``memory-cap`` value in bytes: ``"3GiB"``, ``"512MiB"``, ``"2GB"``, a whole number of bytes,
+    or ``"none"`` (0: no cap). Anything else is an :class:`InputError` naming ``where`` and the setting."""
+    import re
+
+    problem = "must be a size such as 3GiB or 512MiB (units KiB, MiB, GiB, TiB, kB, MB, GB, TB), or none"
+    if isinstance(value, bool) or not isinstance(value, (str, int)):
+        raise InputError(where, "memory-cap", problem)
+    text = str(value).strip()
+    if text.lower() in ("none", "unlimited", "0"):
+        return 0
+    match = re.fullmatch(r"(\d+(?:\.\d+)?)\s*([A-Za-z]*)", text)
+    if not match or match.group(2).lower() not in _UNITS:
+        raise InputError(where, "memory-cap", f"'{text[:40]}' {problem}")
+    size = int(float(match.group(1)) * _UNITS[match.group(2).lower()])
+    if size < 16 * 1024**2:
+        raise InputError(where, "memory-cap", f"'{text[:40]}' is below the smallest cap, 16MiB (or give none)")
+    return size
 
 
 def config_path() -> Path:
@@ -62,7 +89,8 @@ def _login_name() -> str:
 
 
 def load_settings(*, database: str | None = None, disable_plugins: list[str] | None = None,
-                  author: str | None = None, cluster: str | None = None) -> Settings:
+                  author: str | None = None, cluster: str | None = None,
+                  memory_cap: str | int | None = None) -> Settings:
     """Resolve every setting; arguments are the command-line options (None = not given)."""
     file = _file_values()
 
@@ -88,4 +116,9 @@ def load_settings(*, database: str | None = None, disable_plugins: list[str] | N
     where = pick("cluster", cluster) or ""
     if not isinstance(where, str):
         raise InputError(str(config_path()), "cluster", "must be a string (tcp://host:8786 or local:N)")
-    return Settings(database=db, disable_plugins=tuple(blocked), author=str(who), cluster=where)
+    cap = pick("memory_cap", memory_cap)
+    if cap is not None:
+        env, _key = SETTINGS["memory_cap"]
+        source = "argument" if memory_cap is not None else env if os.environ.get(env) else str(config_path())
+        cap = parse_memory_cap(cap, source)
+    return Settings(database=db, disable_plugins=tuple(blocked), author=str(who), cluster=where, memory_cap=cap)

@@ -27,6 +27,9 @@ class AppContext:
 
     settings: Settings
 
+    def __post_init__(self) -> None:
+        apply_memory_cap(self.settings)
+
     @cached_property
     def engine(self) -> Engine:
         from gravicat.store.db import make_engine
@@ -55,6 +58,13 @@ class AppContext:
         from gravicat.registry import make_plugin_manager
 
         return make_plugin_manager(blocked=self.settings.disable_plugins)
+
+
+def apply_memory_cap(settings: Settings) -> None:
+    """Give the one child-process runner the ``memory-cap`` setting (unset: its default cap)."""
+    from gravicat.engine.fork import DEFAULT_MEMORY_CAP_BYTES, set_memory_cap
+
+    set_memory_cap(DEFAULT_MEMORY_CAP_BYTES if settings.memory_cap is None else settings.memory_cap)
 
 
 def app_context(ctx: typer.Context) -> AppContext:
@@ -97,7 +107,7 @@ def reports_errors(fn):
             typer.echo(f"Error: {exc}", err=True)
             raise typer.Exit(exc.exit_code) from None
         except Exception as exc:
-            converted = _database_failure(exc)
+            converted = _database_failure(exc)  # lazily: the api (and SQLAlchemy) only on a failure
             if converted is None:
                 raise
             failed = True
@@ -113,16 +123,13 @@ def reports_errors(fn):
 
 
 def _database_failure(exc: Exception) -> DatabaseError | None:
+    """A SQLAlchemy failure as its one line: the api's one conversion
+    (:func:`gravicat.api.catalogue.database_failure`), imported only when something failed."""
     if not type(exc).__module__.startswith("sqlalchemy"):
         return None
-    from sqlalchemy.exc import IntegrityError, OperationalError
+    from gravicat.api.catalogue import database_failure
 
-    if isinstance(exc, IntegrityError):
-        return DatabaseError(f"the database refused the change (a concurrent edit?): "
-                             f"{str(exc.orig).splitlines()[0]}; nothing was written, try again")
-    if isinstance(exc, OperationalError):
-        return DatabaseError(f"database error: {str(exc.orig).splitlines()[0]}; nothing was written")
-    return None
+    return database_failure(exc)
 
 
 def merge_set_options(given: list[str] | None, old: str | list[str] | None, old_name: str) -> list[str]:

@@ -27,6 +27,9 @@ own process group, and a stopped child is killed with its whole group, so grandc
 verifier's own time-limited proofs) do not outlive it. Children are not daemonic, so the task
 may fork children of its own.
 
+Output: a child's standard output goes to /dev/null (what it computes travels through its pipe,
+and nothing it prints may mix into the command's own output); its standard error is the parent's.
+
 Memory: every child gets an address-space cap (``RLIMIT_AS``) of what it inherits at the fork plus
 :data:`MEMORY_CAP_BYTES` (default :data:`DEFAULT_MEMORY_CAP_BYTES`, 3 GiB; ``memory-cap`` in the
 settings, set through :func:`set_memory_cap`), so a chart that would need more memory ends as a
@@ -70,6 +73,31 @@ def set_memory_cap(cap_bytes: int | None) -> None:
     """Set the address space each child may add to what it inherits (None or 0: no cap)."""
     global MEMORY_CAP_BYTES
     MEMORY_CAP_BYTES = int(cap_bytes) if cap_bytes else None
+
+
+def memory_cap_text() -> str:
+    """The memory cap of a child as text: ``"512 MiB"``, ``"3 GiB"`` or ``"no cap"``."""
+    if not MEMORY_CAP_BYTES:
+        return "no cap"
+    mib = MEMORY_CAP_BYTES / 1024**2
+    return f"{mib / 1024:g} GiB" if mib >= 1024 and mib % 1024 == 0 else f"{mib:g} MiB"
+
+
+def describe_limit(outcome: Outcome, cpu_seconds: float | None = None, wall_seconds: float | None = None) -> str:
+    """Why a child that reached a limit was stopped, in the words every caller uses: ``"memory cap
+    (512 MiB) reached"``, ``"CPU-time cap of 20 s reached"``, ``"elapsed-time cap of 60 s reached"``
+    (the caps the caller gave; without them the sentence has no number). For an outcome without a
+    limit, how it ended instead (its error, or its exit code)."""
+    if outcome.limit == "memory":
+        return f"memory cap ({memory_cap_text()}) reached"
+    if outcome.limit == "cpu":
+        return "CPU-time cap reached" if cpu_seconds is None else f"CPU-time cap of {cpu_seconds:g} s reached"
+    if outcome.limit == "wall":
+        return ("elapsed-time cap reached" if wall_seconds is None
+                else f"elapsed-time cap of {wall_seconds:g} s reached")
+    if outcome.error is not None:
+        return outcome.error
+    return f"the child process ended without a result (exit code {outcome.exitcode})"
 
 
 @dataclass
@@ -269,6 +297,7 @@ def _child(fn: Task, send, cpu_seconds: float | None, memory_bytes: int | None =
     except OSError:  # pragma: no cover - already a group leader
         pass
     _die_with_parent(parent)
+    _quiet_stdout()
     _limit_cpu(cpu_seconds)
     _limit_memory(memory_bytes)
     code = 0
@@ -287,6 +316,22 @@ def _child(fn: Task, send, cpu_seconds: float | None, memory_bytes: int | None =
         except OSError:  # pragma: no cover
             pass
     os._exit(code)  # no atexit handlers, no flushing of the parent's buffered output
+
+
+def _quiet_stdout() -> None:
+    """Point the child's standard output at /dev/null: results travel through the pipe only, and a C
+    library's own message (flint prints "Unable to allocate memory" on stdout before it aborts at the
+    memory cap) must not land in the command's output (a ``--json`` document). Standard error stays."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+    except OSError:  # pragma: no cover
+        return
+    try:
+        os.dup2(devnull, 1)
+    except OSError:  # pragma: no cover
+        pass
+    finally:
+        os.close(devnull)
 
 
 def _limit_cpu(seconds: float | None) -> None:

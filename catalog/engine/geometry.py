@@ -695,12 +695,15 @@ def _run_limited(fn, seconds):
 
     The child gets a CPU-time cap (so a loaded machine does not turn a proof into a timeout, as on
     the flint path); the parent also gives up after a generous wall-clock limit. The error is
-    ``"budget"`` when a limit stopped the child."""
-    from gravicat.engine.fork import run_forked
+    ``"budget"`` when its time ran out, the memory cap's wording (``"memory cap (3 GiB) reached"``,
+    :func:`gravicat.engine.fork.describe_limit`) when it needed more memory."""
+    from gravicat.engine.fork import describe_limit, run_forked
 
     out = run_forked(lambda emit: fn(), cpu_seconds=max(1.0, seconds), wall_seconds=max(4 * seconds, seconds + 30))
     if out.finished:
         return out.value, None
+    if out.limit == "memory":
+        return {}, describe_limit(out)
     if out.limit is not None:
         return {}, "budget"
     if out.error is not None:

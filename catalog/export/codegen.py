@@ -272,7 +272,7 @@ def christoffel_symbols(spec, budget: float = DEFAULT_BUDGET) -> dict:
     whose symbols do not reduce within the budget gives a one-line CatalogError (nothing is printed
     half).
     """
-    from gravicat.engine.fork import run_forked
+    from gravicat.engine.fork import describe_limit, run_forked
 
     def work(emit):
         from gravicat.engine.geometry import Geometry
@@ -292,8 +292,12 @@ def christoffel_symbols(spec, budget: float = DEFAULT_BUDGET) -> dict:
     outcome = run_forked(work, cpu_seconds=budget, wall_seconds=2 * budget + 10)
     if outcome.finished:
         return outcome.value
+    if outcome.limit == "memory":
+        raise CatalogError(f"{where}: the Christoffel symbols did not reduce: {describe_limit(outcome)} "
+                           "(setting memory-cap); export without the Christoffel symbols")
     if outcome.limit is not None:
-        raise CatalogError(f"{where}: the Christoffel symbols did not reduce within {budget:g} s; "
+        raise CatalogError(f"{where}: the Christoffel symbols did not reduce within {budget:g} s "
+                           f"({describe_limit(outcome, budget, 2 * budget + 10)}); "
                            f"export without the Christoffel symbols (or give a larger budget)")
     if outcome.died:
         raise CatalogError(f"{where}: the Christoffel computation stopped unexpectedly (exit code {outcome.exitcode})")

@@ -70,17 +70,18 @@ def _pool_map(fn, items: list, jobs: int, *, cpu_seconds=None, wall_seconds=None
         elif out.exception is not None:
             raise out.exception
         else:
-            raise RuntimeError(f"a repair worker ended without a result ({out.limit or out.error or out.exitcode})")
+            raise RuntimeError(f"a repair worker ended without a result ({_why(out)})")
     return values
 
 
-def _why(out) -> str:
-    """Why a forked item gave no result (a limit, an error, or how the child ended)."""
-    if out.limit is not None:
-        return f"the {'CPU-time' if out.limit == 'cpu' else 'time'} limit was reached"
-    if out.error is not None:
-        return out.error
-    return "the worker process ended without a result"
+def _why(out, cpu_seconds: float | None = None, wall_seconds: float | None = None) -> str:
+    """Why a forked item gave no result (a limit, in the runner's one wording, an error, or how the
+    child ended)."""
+    from gravicat.engine.fork import describe_limit
+
+    if out.limit is None and out.error is None:
+        return "the worker process ended without a result"
+    return describe_limit(out, cpu_seconds, wall_seconds)
 
 
 def _screen_chunk(indices: list[int]) -> list[tuple[int, bool, float, tuple | None] | None]:
@@ -377,7 +378,7 @@ def find_repairs(
     # 1. baseline
     limit = proof_budget * (4 * len(chosen) + 4) + 60  # a CPU cap only as a backstop: each proof has its budget
     outs = _pool_map(_baseline_task, names, 1 if in_process else jobs, cpu_seconds=limit,
-                     failed=lambda chart, out: _unfinished_baseline(chart, chosen, _why(out)))
+                     failed=lambda chart, out: _unfinished_baseline(chart, chosen, _why(out, limit)))
     report = RepairReport(metric=doc.id, charts=[])
     for out in outs:
         report.charts.append(ChartRepair(chart=out["chart"],
@@ -505,7 +506,7 @@ def _repair_chart(doc, cr: ChartRepair, verifiers, docs, max_edits, budget, proo
     _STATE.update(proofs=jobs_data)
     limit = _proof_limit()
     outs = _pool_map(_proof_body, list(range(len(todo))), jobs, cpu_seconds=limit, wall_seconds=limit, forked=True,
-                     failed=lambda i, out: {"i": i, "error": _why(out)})
+                     failed=lambda i, out: {"i": i, "error": _why(out, limit, limit)})
     cr.proved = len(outs)
     failed_before = {r.check for r in cr.baseline if r.status in (Status.FAIL, Status.ERROR)}
     for cand, out in zip(todo, outs, strict=True):

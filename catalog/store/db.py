@@ -6,6 +6,9 @@ imported only when an upgrade has to run.
 
 from __future__ import annotations
 
+import os
+import stat
+import weakref
 from importlib.resources import files
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -45,8 +48,68 @@ def redacted(text: str) -> str:
     return text if len(text) <= 200 else text[:197] + "..."
 
 
+# engines opened for reading only -> why (issue 14 item 8); see read_only_reason
+_READ_ONLY: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+
+
+def _writable(path: Path) -> bool:
+    """Whether ``path`` may be written: the system allows it (``os.access``) and its permission bits
+    give someone write access. A file or folder with no write bit at all (``chmod a-w``) is treated as
+    read-only even by a user the system would let write (root), so such a catalogue is never changed."""
+    try:
+        return os.access(path, os.W_OK) and _write_bits(path)
+    except OSError:
+        return False
+
+
+def sqlite_access(path: Path) -> tuple[str, str | None]:
+    """How to open the SQLite file ``path``: ``("write", None)``, or for reading only
+    ``("ro", why)`` (SQLite's ``mode=ro``: we may not write the file but someone may, or changes wait
+    in a ``-wal`` file; SQLite coordinates with writers through its shared-memory file) or
+    ``("immutable", why)`` (the folder is not writable, so no ``-wal``/``-shm`` file can be made, or the
+    file has no write bit at all, so nobody changes it: SQLite reads the file as it is, without lock
+    files). A file that does not exist yet is ``"write"`` (``init`` creates it)."""
+    if not path.exists():
+        return "write", None
+    folder = path.parent
+    if not _writable(folder):
+        if Path(f"{path}-wal").exists():  # changes may wait in the write-ahead log: read them with it
+            return "ro", f"its folder {folder} is not writable"
+        return "immutable", f"its folder {folder} is not writable"
+    if not _writable(path):
+        if not Path(f"{path}-wal").exists() and not _write_bits(path):
+            return "immutable", "the file is not writable"  # nobody may change it: no lock files needed
+        return "ro", "the file is not writable"
+    return "write", None
+
+
+def _write_bits(path: Path) -> bool:
+    try:
+        return bool(path.stat().st_mode & (stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
+    except OSError:
+        return False
+
+
+def read_only_reason(engine: Engine) -> str | None:
+    """Why ``engine`` was opened for reading only (a read-only SQLite catalogue), else None."""
+    return _READ_ONLY.get(engine)
+
+
+def refuse_if_read_only(engine: Engine, what: str) -> None:
+    """A :class:`DatabaseError` before ``what`` (e.g. ``"verify"``) starts, when the catalogue is
+    read-only; nothing is written."""
+    why = read_only_reason(engine)
+    if why is not None:
+        raise DatabaseError(f"{why}; {what} needs write access, nothing was written")
+
+
 def make_engine(url: str) -> Engine:
-    """An engine for ``url``; SQLite gets foreign keys, WAL and a busy timeout."""
+    """An engine for ``url``; SQLite gets foreign keys, WAL and a busy timeout.
+
+    A SQLite catalogue that is not writable (the file, or its folder: :func:`sqlite_access`) is
+    opened for reading only, without WAL set-up, so listing, showing, finding, exporting and
+    checking work; a command that writes then ends with one line, "the catalogue FILE is read-only:
+    ..." (:func:`read_only_reason`), and nothing is written."""
     from sqlalchemy import create_engine, event
     from sqlalchemy.engine import make_url
     from sqlalchemy.exc import ArgumentError, NoSuchModuleError
@@ -58,6 +121,7 @@ def make_engine(url: str) -> Engine:
         raise DatabaseError(f"--db: '{redacted(url)}' is not a database URL (expected e.g. "
                             "sqlite:///path/catalogue.sqlite or postgresql+psycopg://user@host/dbname)") from None
     kwargs = {}
+    read_only = None  # (SQLite URI of the file opened for reading only, why) when the catalogue is read-only
     if parsed.get_backend_name() == "sqlite":
         database = parsed.database
         if database and database != ":memory:" and not database.startswith("file:"):
@@ -72,7 +136,16 @@ def make_engine(url: str) -> Engine:
                     folder.mkdir(parents=True, exist_ok=True)
                 else:
                     raise DatabaseError(f"--db {safe_url(url)}: folder {folder} does not exist")
+            path = folder / Path(database).expanduser().name
+            mode, why = sqlite_access(path)
+            if mode != "write" and not parsed.query:
+                uri = f"{path.as_uri()}?{'mode=ro' if mode == 'ro' else 'immutable=1'}"
+                read_only = (uri, f"the catalogue {path} is read-only: {why}")
         kwargs["connect_args"] = {"timeout": 30}
+        if read_only is not None:
+            import sqlite3
+
+            kwargs["creator"] = lambda: sqlite3.connect(read_only[0], uri=True, timeout=30)
     try:
         engine = create_engine(parsed, **kwargs)
     except NoSuchModuleError:
@@ -85,9 +158,21 @@ def make_engine(url: str) -> Engine:
         def _sqlite_pragmas(dbapi_conn, _record):  # noqa: ARG001
             cur = dbapi_conn.cursor()
             cur.execute("PRAGMA foreign_keys=ON")
-            cur.execute("PRAGMA journal_mode=WAL")
+            if read_only is None:  # WAL set-up writes to the file: never on a read-only catalogue
+                cur.execute("PRAGMA journal_mode=WAL")
             cur.execute("PRAGMA busy_timeout=30000")
             cur.close()
+
+        if read_only is not None:
+            _READ_ONLY[engine] = read_only[1]
+
+            @event.listens_for(engine, "handle_error")
+            def _read_only_write(context):
+                # SQLite refused a write (SQLITE_READONLY): the one line, instead of a driver error
+                original = context.original_exception
+                if ("readonly database" in str(original)
+                        or getattr(original, "sqlite_errorname", "") == "SQLITE_READONLY"):
+                    raise DatabaseError(f"{read_only[1]}; this command needs write access, nothing was written")
 
         # let SQLAlchemy, not the driver, open transactions (BEGIN IMMEDIATE serialises writers)
         @event.listens_for(engine, "connect")
@@ -164,10 +249,15 @@ def ensure_schema(engine: Engine, *, may_upgrade: bool, may_create: bool = False
     A database without a schema is created only when ``may_create`` (``gravicat init``);
     an older one is upgraded when ``may_upgrade`` and refused with the exact command otherwise.
     """
+    if may_create:
+        refuse_if_read_only(engine, "init")
     found = current_revision(engine)
     if found == SCHEMA_HEAD:
         return
     url = safe_url(engine.url.render_as_string(hide_password=False))
+    if read_only_reason(engine) is not None and found is not None and found in known_revisions():
+        raise DatabaseError(f"{read_only_reason(engine)}; its schema {found} needs an upgrade to {SCHEMA_HEAD} "
+                            "(write access), nothing was written")
     if found is None and not may_create:
         raise DatabaseError(f"--db {url}: no catalogue here yet; run 'gravicat --db {url} init' first")
     chain = known_revisions()
