@@ -105,14 +105,23 @@ class Catalogue:
     ``postgresql+psycopg://user@host/dbname``). Nothing is opened until first used. A SQLite
     catalogue is upgraded to this version's schema on first use; a PostgreSQL one must be
     initialised (or upgraded) with :meth:`init` or ``gravicat init``. ``disable_plugins`` blocks
-    plugins by entry-point name, like ``--disable-plugin``.
+    plugins by entry-point name, like ``--disable-plugin``. ``memory_cap`` (``"3GiB"``, ``"512MiB"``,
+    ``"none"``) overrides the ``memory-cap`` setting (``GRAVICAT_MEMORY_CAP``, ``config.toml``): the
+    address space each child process of a check or verification may add; it applies to every child
+    this process starts from then on.
 
     Use it as a context manager, or call :meth:`close`, to release its connections.
     """
 
-    def __init__(self, url: str | None = None, *, disable_plugins: Iterable[str] | None = None):
-        self.settings = configured(database=url, disable_plugins=list(disable_plugins or []) or None)
+    def __init__(self, url: str | None = None, *, disable_plugins: Iterable[str] | None = None,
+                 memory_cap: str | int | None = None):
+        from gravicat.engine.fork import DEFAULT_MEMORY_CAP_BYTES, set_memory_cap
+
+        self.settings = configured(database=url, disable_plugins=list(disable_plugins or []) or None,
+                                   memory_cap=memory_cap)
         self.url = self.settings.database
+        cap = self.settings.memory_cap
+        set_memory_cap(DEFAULT_MEMORY_CAP_BYTES if cap is None else cap)
         self._ready = False
 
     def __repr__(self) -> str:
