@@ -246,6 +246,10 @@ def verify_revisions(app_ctx: AppContext, pick, chosen, *, force: bool, budget: 
         units, keys = units_for(session, list(revs.values()), chosen, force=force, budget=budget,
                                 blocked=app_ctx.settings.disable_plugins)
         units = [u for u in units if only[u["key"]] is None or u["chart"] in only[u["key"]]]
+    if units:  # results to store: refused before any work on a read-only catalogue (issue 14 item 8)
+        from gravicat.store.db import refuse_if_read_only
+
+        refuse_if_read_only(app_ctx.engine, "verify (to store its results)")
     app_ctx.engine.dispose()  # no pooled connection is inherited by the forked children
     if cluster is not None:
         outputs = []
@@ -328,25 +332,55 @@ def invariants(
     subject: Annotated[str, typer.Argument(help="Metric file (FILE[:CHART]) or catalogue entry "
                                                 "(ID[@REVISION][:CHART]).", show_default=False)],
     chart: Annotated[list[str] | None, typer.Option("--chart", help="Only this chart (repeatable).")] = None,
+    budget: Annotated[float, typer.Option("--budget", min=0.1, help="CPU seconds for each chart (building it and "
+                                                                    "computing both scalars); a chart not done "
+                                                                    "within them ends the command (exit 1).")] = 60.0,
     as_json: JsonOpt = False,
 ) -> None:
-    """The Ricci scalar and the Kretschmann scalar of each chart, in closed form."""
-    from gravicat.engine.geometry import Geometry
-    from gravicat.format.metricfile import build_chart
+    """The Ricci scalar and the Kretschmann scalar of each chart, in closed form.
+
+    Each chart is built and computed in its own process under a CPU-time cap of --budget seconds and
+    the memory cap (setting memory-cap); if any chart does not finish, nothing is printed and one line
+    says which and why (exit 1).
+    """
+    from gravicat.engine import fork
 
     _quick_exit()
     app_ctx = app_context(ctx)
     found = open_subject(app_ctx, subject)
     doc = found.document
     names = subject_charts(subject, found.chart, chart) or doc.chart_names
-    out = []
     for name in names:
-        geo = Geometry(build_chart(doc, name))
-        out.append({"chart": name, "ricci_scalar": str(geo.to_sympy(geo.ricci_scalar)),
-                    "kretschmann": str(geo.to_sympy(geo.kretschmann)), "path": geo.path})
+        if name not in doc.chart_names:
+            raise InputError(subject, f"charts.{name}", f"no such chart (charts: {', '.join(doc.chart_names)})")
+    if "engine" in app_ctx.__dict__:
+        app_ctx.engine.dispose()  # no pooled connection is inherited by the forked children
+    import gravicat.engine.geometry  # noqa: F401 - sympy and flint once, inherited by every child
+
+    outs = fork.run_many([lambda emit, name=name: _invariants_of(doc, name) for name in names],
+                         jobs=min(len(names), fork.default_jobs()), cpu_seconds=budget)
+    for name, o in zip(names, outs, strict=True):
+        if o.finished:
+            continue
+        if o.error is not None:
+            o.reraise()  # bad input found while building the chart is its own one line; a bug keeps its traceback
+        why = fork.describe_limit(o, budget, 4 * budget + 30)
+        raise CheckFailed(f"{doc.id}:{name}: the invariants were not computed ({why}); nothing printed"
+                          + ("; give a larger --budget" if o.limit in ("cpu", "wall") else ""))
+    out = [o.value | {"chart": name} for name, o in zip(names, outs, strict=True)]
     if as_json:
-        emit_json({"metric": doc.id, "charts": [{k: v for k, v in c.items() if k != "path"} for c in out]})
+        emit_json({"metric": doc.id, "charts": [{k: c[k] for k in ("chart", "ricci_scalar", "kretschmann")}
+                                                for c in out]})
         return
     for c in out:
         typer.echo(f"{doc.id} / {c['chart']}:\n  Ricci scalar = {c['ricci_scalar']}\n"
                    f"  Kretschmann  = {c['kretschmann']}")
+
+
+def _invariants_of(doc, name: str) -> dict:
+    """The closed forms of one chart (run in a forked child of :func:`invariants`)."""
+    from gravicat.engine.geometry import Geometry
+    from gravicat.format.metricfile import build_chart
+
+    geo = Geometry(build_chart(doc, name))
+    return {"ricci_scalar": str(geo.to_sympy(geo.ricci_scalar)), "kretschmann": str(geo.to_sympy(geo.kretschmann))}
