@@ -13,12 +13,12 @@ from typing import Annotated
 
 import typer
 
-from gravicat.cli import checks, entries, export, history, image, orbits, plugins, probe, repair, site, split
+from gravicat.cli import checks, classify, entries, export, history, image, orbits, plugins, probe, repair, site, split
 from gravicat.cli._base import AppContext, reports_errors
 
 app = typer.Typer(no_args_is_help=True, rich_markup_mode=None, pretty_exceptions_enable=False,
                   add_completion=False, help="Catalogue, verify and export spacetime metrics.")
-for module in (entries, checks, repair, history, export, probe, orbits, image, site, split, plugins):
+for module in (entries, checks, classify, repair, history, export, probe, orbits, image, site, split, plugins):
     app.add_typer(module.app)
 
 

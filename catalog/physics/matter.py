@@ -28,11 +28,12 @@ __all__ = ["stress_energy8", "eulerian_energy_density8", "diagonal_eigenvalues",
 CONDITIONS = ("null", "weak", "strong", "dominant")
 
 
-def stress_energy8(X, spec):
-    """8 pi T_ab (list of lists) on the backend ``X``: G_ab + Lambda g_ab."""
+def stress_energy8(X, spec, include_lambda: bool = True):
+    """8 pi T_ab (list of lists) on the backend ``X``: G_ab + Lambda g_ab. With ``include_lambda=False``
+    the cosmological constant counts as matter (vacuum energy): 8 pi T_ab = G_ab."""
     from gravicat.physics.claims import SpecMatter
 
-    lam = SpecMatter(spec, X).cosmological_constant()
+    lam = SpecMatter(spec, X).cosmological_constant() if include_lambda else None
     G, g, n = X.einstein, X.g, X.n
     if lam is None:
         return [[G[a][b] for b in range(n)] for a in range(n)]
@@ -86,14 +87,14 @@ def _frame(pd):
     return [e0, e1, e2, e3]
 
 
-def point_matter(pd, spec):
+def point_matter(pd, spec, include_lambda: bool = True):
     """Hawking-Ellis type, rho, the p_i and the frame eigenvectors at one sample point (a dict)."""
     import mpmath as mp
 
     from gravicat.physics.petrov import _num
 
     with pd.precision():  # interval and floating values of the point need the engine's extra digits
-        T8 = stress_energy8(pd, spec)
+        T8 = stress_energy8(pd, spec, include_lambda)
     with mp.workdps(40), pd.precision():
         T = [[_num(v) for v in row] for row in T8]
         E = _frame(pd)
@@ -150,7 +151,7 @@ def _violations(m):
     return bad
 
 
-def energy_conditions(geometry, spec) -> dict:
+def energy_conditions(geometry, spec, include_lambda: bool = True) -> dict:
     """Status of each of :data:`CONDITIONS` over the chart's sample points (see the module docstring)."""
     import mpmath as mp
 
@@ -160,7 +161,7 @@ def energy_conditions(geometry, spec) -> dict:
     types = set()
     for pd in points:
         try:
-            m = point_matter(pd, spec)
+            m = point_matter(pd, spec, include_lambda)
         except (ZeroDivisionError, ValueError):
             continue
         types.add(m["type"])

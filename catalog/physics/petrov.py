@@ -354,11 +354,23 @@ def tetrad_at(pd):
 
     i0 = next((i for i in range(n) if gi[i][i] < 0), None)
     if i0 is None:
-        return None, "no coordinate hypersurface is spacelike at the point"
-    e0 = [-gi[a][i0] / mp.sqrt(-gi[i0][i0]) for a in range(n)]
+        # no coordinate hypersurface is spacelike (a null coordinate, as in Brinkmann's form): the
+        # covector along the eigenvector of g^ab (as a matrix) with a negative eigenvalue is timelike
+        E, V = mp.eigsy(mp.matrix(gi))
+        k = min(range(n), key=lambda i: E[i])
+        if not E[k] < 0:
+            return None, "g^ab has no negative eigenvalue at the point"
+        w = [V[a, k] for a in range(n)]
+        up = [mp.fsum(gi[a][b] * w[b] for b in range(n)) for a in range(n)]
+        e0 = [-x / mp.sqrt(-dot(up, up)) for x in up]
+        first = None
+    else:
+        e0 = [-gi[a][i0] / mp.sqrt(-gi[i0][i0]) for a in range(n)]
+        first = i0
     frame = [e0]
+    used = []
     for j in range(n):
-        if j == i0:
+        if j == first or len(frame) == n:
             continue
         v = [mp.mpf(1 if a == j else 0) for a in range(n)]
         for k, e in enumerate(frame):
@@ -366,9 +378,14 @@ def tetrad_at(pd):
             c = dot(v, e) * sign
             v = [v[a] - c * e[a] for a in range(n)]
         nv = dot(v, v)
+        if first is None and abs(nv) <= mp.mpf(10) ** -20 * max(1, abs(g[j][j])):
+            continue  # d/dx^j lies in the span of the vectors before it
         if nv <= 0:
             return None, "Gram-Schmidt met a non-spacelike vector"
         frame.append([x / mp.sqrt(nv) for x in v])
+        used.append(j)
+    if len(frame) != n:
+        return None, "the coordinate vectors do not complete the frame"
     r2 = mp.sqrt(2)
     e0, e1, e2, e3 = frame
     tet = {
@@ -377,9 +394,11 @@ def tetrad_at(pd):
         "m": [mp.mpc(e2[a], e3[a]) / r2 for a in range(n)],
     }
     names = [str(c) for c in pd.coords]
-    others = [names[j] for j in range(n) if j != i0]
-    text = (f"e0 = unit normal of {names[i0]} = const; e1, e2, e3 = Gram-Schmidt of d/d{others[0]}, "
-            f"d/d{others[1]}, d/d{others[2]}; l, n = (e0 +- e1)/sqrt(2), m = (e2 + i e3)/sqrt(2)")
+    others = [names[j] for j in used]
+    normal = (f"unit normal of {names[first]} = const" if first is not None else
+              "unit timelike vector g^ab w_b, w the eigenvector of the matrix g^ab with a negative eigenvalue")
+    text = (f"e0 = {normal}; e1, e2, e3 = Gram-Schmidt of "
+            f"{', '.join('d/d' + x for x in others)}; l, n = (e0 +- e1)/sqrt(2), m = (e2 + i e3)/sqrt(2)")
     return tet, text
 
 
@@ -483,3 +502,141 @@ def fmt_complex(z, digits: int = 12) -> str:
     if re == 0:
         return f"{mp.nstr(im, digits)}*I"
     return f"{mp.nstr(re, digits)} {'+' if im > 0 else '-'} {mp.nstr(abs(im), digits)}*I"
+
+
+# ---------------------------------------------------------------------------
+# principal null directions at a point (types D and N)
+
+
+def _adapted_frame(pd, l1, n1, m0):
+    """A null tetrad (l, n, m) at ``pd`` with l = l1 and n along n1 (l.n = -1, m.mbar = 1), m from ``m0``
+    projected on the spacelike 2-plane orthogonal to l and n (mpmath)."""
+    import mpmath as mp
+
+    n = pd.n
+    g = [[_num(pd.g[a][b]) for b in range(n)] for a in range(n)]
+
+    def dot(u, v):
+        return mp.fsum(g[a][b] * u[a] * v[b] for a in range(n) for b in range(n))
+
+    c = dot(l1, n1)
+    nn = [x / -c for x in n1]
+
+    def proj(v):
+        return [v[a] + dot(v, nn) * l1[a] + dot(v, l1) * nn[a] for a in range(n)]
+
+    # the spacelike 2-plane orthogonal to l and n: Gram-Schmidt of the projections of Re m, Im m and
+    # of the coordinate vectors, keeping the two largest (a projection may be nearly 0)
+    cands = [proj([mp.re(z) for z in m0]), proj([mp.im(z) for z in m0])]
+    cands += [proj([mp.mpf(1 if a == j else 0) for a in range(n)]) for j in range(n)]
+    basis = []
+    for _ in range(2):
+        best, size = None, mp.mpf(0)
+        for v in cands:
+            for e in basis:
+                k = dot(v, e)
+                v = [v[a] - k * e[a] for a in range(n)]
+            q = dot(v, v)
+            if q > size:
+                best, size = v, q
+        if best is None:
+            raise ValueError("no spacelike complement")
+        basis.append([v / mp.sqrt(size) for v in best])
+    x, y = basis
+    r2 = mp.sqrt(2)
+    return {"l": l1, "n": nn, "m": [mp.mpc(x[a], y[a]) / r2 for a in range(n)]}
+
+
+def _normalised(v):
+    """Components scaled so the first non-negligible one (in chart order) is 1, as text."""
+    import mpmath as mp
+
+    big = max(abs(x) for x in v)
+    lead = next(x for x in v if abs(x) > big * mp.mpf(10) ** -20)
+    return [fmt_complex(x / lead) for x in v]
+
+
+def principal_null_directions(pd, ptype: str) -> dict | None:
+    """The repeated principal null directions at the sample point ``pd`` for type D (two double ones)
+    or N (one quadruple one), or None when they cannot be stated.
+
+    From the automatic tetrad: the roots b of ``Psi0 + 4 b Psi1 + 6 b^2 Psi2 + 4 b^3 Psi3 + b^4 Psi4``
+    give the principal null directions ``l + conj(b) m + b mbar + |b|^2 n`` (a root at infinity: n)
+    (Stephani et al. 2003, sec. 4.2; the convention of the rotation is fixed by checking Psi0 = 0 for
+    the new l). They are stated only when the tetrad adapted to them has Psi0 = Psi1 = Psi3 = Psi4 = 0
+    (D) or Psi0 = ... = Psi3 = 0 (N) within 10^-12 of the largest scalar."""
+    import mpmath as mp
+
+    if ptype not in ("D", "N") or pd.n != 4:
+        return None
+    with mp.workdps(40), pd.precision():
+        tet, _ = tetrad_at(pd)
+        if tet is None:
+            return None
+        psi = weyl_scalars_at(pd, tet)
+        scale = max(abs(v) for v in psi.values())
+        if scale == 0:
+            return None
+        tol = scale * mp.mpf(10) ** -12
+        l, nv, m = tet["l"], tet["n"], tet["m"]
+        coeffs = [psi["Psi4"], 4 * psi["Psi3"], 6 * psi["Psi2"], 4 * psi["Psi1"], psi["Psi0"]]  # highest first
+        at_infinity = 0
+        while coeffs and abs(coeffs[0]) <= tol:
+            coeffs.pop(0)
+            at_infinity += 1
+        roots = []
+        if len(coeffs) > 1:
+            roots = mp.polyroots(coeffs, maxsteps=200, extraprec=200, error=False)
+        # cluster repeated roots (a double root is found to about half the working digits)
+        groups: list = []
+        for z in roots:
+            for grp in groups:
+                if abs(grp[0] - z) <= mp.mpf(10) ** -8 * max(1, abs(z)):
+                    grp.append(z)
+                    break
+            else:
+                groups.append([z])
+        dirs = []
+        if at_infinity:
+            dirs.append((at_infinity, list(nv)))
+        centres = [(len(grp), mp.fsum(grp) / len(grp)) for grp in groups]
+
+        def rotated(b, conj):
+            bb = mp.conj(b) if conj else b
+            return [mp.re(l[a] + mp.conj(bb) * m[a] + bb * mp.conj(m[a]) + abs(bb) ** 2 * nv[a]) for a in range(4)]
+
+        def psi0(k):
+            return abs(weyl_scalars_at(pd, _adapted_frame(pd, k, nv if abs(_dot(pd, k, nv)) > tol else l, m))["Psi0"])
+
+        # one convention of the null rotation for all roots: the one that makes Psi0 vanish
+        for conj in (False, True):
+            ks = [(mult, rotated(b, conj)) for mult, b in centres]
+            if all(psi0(k) <= tol * 10**4 for _, k in ks):
+                dirs += ks
+                break
+        else:
+            return None
+        want = {"D": [2, 2], "N": [4]}[ptype]
+        if sorted(mult for mult, _ in dirs) != want:
+            return None
+        if ptype == "D":
+            (_, k1), (_, k2) = dirs
+            frame = _adapted_frame(pd, k1, k2, m)
+            vanish = ("Psi0", "Psi1", "Psi3", "Psi4")
+        else:
+            (_, k1), = dirs
+            other = nv if abs(_dot(pd, k1, nv)) > tol else l
+            frame = _adapted_frame(pd, k1, other, m)
+            vanish = ("Psi0", "Psi1", "Psi2", "Psi3")
+        check = weyl_scalars_at(pd, frame)
+        if any(abs(check[k]) > tol for k in vanish):
+            return None
+        return {"directions": [{"multiplicity": mult, "vector": _normalised(k)} for mult, k in dirs],
+                "adapted_weyl_scalars": {k: fmt_complex(v) for k, v in check.items()}}
+
+
+def _dot(pd, u, v):
+    import mpmath as mp
+
+    n = pd.n
+    return mp.fsum(_num(pd.g[a][b]) * u[a] * v[b] for a in range(n) for b in range(n))
