@@ -107,3 +107,42 @@ def test_a_memory_error_in_a_child_is_the_memory_limit():
     finally:
         fork.set_memory_cap(old)
     assert out.limit == "memory" and out.error is None
+
+
+def test_a_hostile_entry_stored_before_the_limits_is_verified_within_its_bound(tmp_path):
+    """Issue 14 item 3: a chain of definitions stored in a catalogue (written before the parse-time
+    limits, or by hand) kept `verify --budget 5` running past 150 s. The limits refuse it at `add`;
+    one already stored is verified under the same caps and ends inconclusive with its reason."""
+    import json
+    import sqlite3
+
+    env = {**os.environ, "GRAVICAT_DB": f"sqlite:///{tmp_path / 'c.sqlite'}",
+           "GRAVICAT_CONFIG": str(tmp_path / "none.toml")}
+    env.pop("GRAVICAT_MEMORY_CAP", None)
+
+    def gravicat(*args):
+        return subprocess.run([sys.executable, "-m", "gravicat", *args], capture_output=True, text=True, env=env,
+                              timeout=600)
+
+    hostile = (HOSTILE / "chain-of-definitions.toml").read_text(encoding="utf-8")
+    benign = tmp_path / "benign.toml"
+    benign.write_text(hostile.replace("a1**1000", "a1**2").replace("a2**1000", "a2**2"), encoding="utf-8")
+    assert gravicat("init", "--empty").returncode == 0
+    assert gravicat("add", str(benign)).returncode == 0
+    with sqlite3.connect(tmp_path / "c.sqlite") as conn:  # the stored document becomes the hostile one
+        rid, text = conn.execute("SELECT id, document FROM revision").fetchone()
+        doc = json.loads(text)
+        doc["charts"]["cartesian"]["define"].update(a2="a1**1000", a3="a2**1000")
+        conn.execute("UPDATE revision SET document = ? WHERE id = ?", (json.dumps(doc), rid))
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    done = gravicat("verify", "hostile-chain-of-definitions", "--budget", "5", "--json")
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    bound = runner.CAP_BASE + 5 * 9 + OVERHEAD
+    assert cpu <= bound, f"{cpu:.1f} CPU s, bound {bound:g}"
+    assert after.ru_maxrss * 1024 < fork.DEFAULT_MEMORY_CAP_BYTES
+    assert "Traceback" not in done.stderr
+    (entry,) = json.loads(done.stdout)["entries"]
+    assert entry["status"] == "inconclusive"
+    assert all(c["status"] in ("pass", "inconclusive", "skipped") for c in entry["checks"]), entry["checks"]
+    assert any("cap" in c["detail"] for c in entry["checks"])
