@@ -143,6 +143,14 @@ def split(
     if grid:
         _write_grid(found, doc, found.chart or doc.chart_names[0], texts, time, budget, grid, output, as_json)
         return
+    errors = []
+    if time is not None and len(names) > 1:  # every chart: only those that have the coordinate --time names
+        have = [n for n in names if time in doc.data["charts"][n].get("coordinates", ())]
+        if not have:
+            raise InputError("--time", None, f"'{time}' is not a coordinate of any chart of {doc.id}")
+        errors = [{"chart": n, "error": f"--time: no coordinate '{time}' in this chart"}
+                  for n in names if n not in have]
+        names = have
     specs, values, value_errors = [], {}, {}
     for name in names:
         spec, vals, err = _chart_inputs(doc, build_chart(doc, name), texts, time_allowed=False)
@@ -151,13 +159,13 @@ def split(
     tasks = [(lambda emit, spec=spec: _chart_report(doc, spec, time=time, budget=budget, values=values[spec.chart],
                                                      value_error=value_errors[spec.chart], source=subject))
              for spec in specs]
-    reports, errors = [], []
+    reports = []
     for name, outcome in zip(names, _run(tasks, budget), strict=True):
         if outcome.finished:
             reports.append(outcome.value)
             continue
         exc = _failure(outcome, f"{doc.id}:{name}", budget)
-        if len(names) == 1:
+        if len(names) == 1 and not errors:
             raise exc
         errors.append({"chart": name, "error": str(exc)})
     if not reports:

@@ -113,14 +113,15 @@ def evaluate(fields: dict[str, Any], coords, axes: list[Axis], subs: dict, domai
     out = {}
     for name, value in fields.items():
         arr = np.asarray(value, dtype=object)
-        flat = [sp.sympify(e).subs(subs) for e in arr.reshape(-1)]
-        left = set().union(*(e.free_symbols for e in flat)) - set(coords)
+        flat = [sp.sympify(e) for e in arr.reshape(-1)]
+        left = set().union(*(e.free_symbols for e in flat)) - set(coords) - set(subs)
         if left:
             raise InputError("--set", ", ".join(sorted(map(str, left))),
                              f"{name} depends on it; give a value with --set NAME=VALUE")
-        f = sp.lambdify(list(coords), flat, modules="numpy")
+        names = list(subs)  # passed as arguments: large expressions are printed once, subexpressions shared
+        f = sp.lambdify([*coords, *names], flat, modules="numpy", cse=True, docstring_limit=0)
         with np.errstate(all="ignore"):
-            vals = f(*mesh)
+            vals = f(*mesh, *[float(subs[k]) for k in names])
         data = np.empty((len(flat), *shape))
         for k, v in enumerate(vals):
             v = np.broadcast_to(np.asarray(v), shape)

@@ -95,14 +95,25 @@ class _Sphere:
         return float(np.sum(values * self.w) * R**2)
 
 
+def _numeric(X, subs, exprs):
+    """A numpy function of (x, y, z) for the sympy ``exprs``, the other symbols fixed by ``subs``
+    (passed as arguments rather than substituted: large expressions are printed once, with common
+    subexpressions shared)."""
+    import sympy as sp
+
+    names = list(subs)
+    raw = sp.lambdify([*X, *names], exprs, "numpy", cse=True, docstring_limit=0)
+    values = [float(subs[k]) for k in names]
+    return lambda *xyz: raw(*xyz, *values)
+
+
 def _mass_integrand(sl, subs):
     import sympy as sp
 
     (gamma,), X, _ = _cartesian(sl, [sl.spatial_metric])
-    gamma = gamma.subs(subs)
     flux = [sum(sp.diff(gamma[i, j], X[j]) - sp.diff(gamma[j, j], X[i]) for j in range(3)) for i in range(3)]
-    return sp.lambdify(X, flux, "numpy"), sp.lambdify(X, [gamma[i, j] - (1 if i == j else 0) for i in range(3)
-                                                         for j in range(3)], "numpy")
+    deviation = [gamma[i, j] - (1 if i == j else 0) for i in range(3) for j in range(3)]
+    return _numeric(X, subs, flux), _numeric(X, subs, deviation)
 
 
 def _spin_integrand(sl, subs):
@@ -110,11 +121,10 @@ def _spin_integrand(sl, subs):
 
     (gamma, K), X, sub = _cartesian(sl, [sl.spatial_metric, sl.extrinsic])
     trace = sp.sympify(sl.trace_k).subs(sub, simultaneous=True) if sub else sp.sympify(sl.trace_k)
-    gamma, K, trace = gamma.subs(subs), K.subs(subs), trace.subs(subs)
     x, y, _z = X
     phi = [-y, x, 0]
     P = [sum((K[i, j] - trace * gamma[i, j]) * phi[i] for i in range(3)) for j in range(3)]  # P_j phi^i
-    return sp.lambdify(X, P, "numpy"), sp.lambdify(X, [K[i, j] for i in range(3) for j in range(3)], "numpy")
+    return _numeric(X, subs, P), _numeric(X, subs, [K[i, j] for i in range(3) for j in range(3)])
 
 
 def _extrapolated(q):
