@@ -208,3 +208,27 @@ def test_init_says_ready_only_with_every_table(tmp_path):
     r = CliRunner().invoke(app, ["--db", url, "init", "--empty"])
     assert r.exit_code == 2 and "ready" not in r.stdout
     assert "lacks the table(s) tag" in r.stderr and len(r.stderr.strip().splitlines()) == 1
+
+
+def test_list_show_find_history_escape_a_stored_escape_sequence(empty_catalogue, db_path):
+    """Issue 14 item 11 through the commands: a title stored before control characters were refused
+    (an OSC sequence that sets the terminal's title, a C1 control, a bidi override) never reaches the
+    terminal raw from list, show, find or history."""
+    import json
+    import sqlite3
+
+    cli = empty_catalogue
+    assert cli("add", str(Path(__file__).parent / "data" / "rindler-demo.toml")).exit_code == 0
+    hostile = "Harmless\x1b]0;pwned\x07 demo\x9b\u202e"
+    with sqlite3.connect(db_path) as conn:  # the revision's title column and its document
+        rid, text = conn.execute("SELECT id, document FROM revision").fetchone()
+        doc = json.loads(text)
+        doc["title"] = hostile
+        conn.execute("UPDATE revision SET title = ?, document = ? WHERE id = ?", (hostile, json.dumps(doc), rid))
+    for args in (["list"], ["show", "halcyon-rindler"], ["find", "Harmless"], ["history", "halcyon-rindler"]):
+        done = cli(*args)
+        assert done.exit_code == 0, (args, done.output)
+        for raw in ("\x1b", "\x07", "\x9b", "\u202e"):
+            assert raw not in done.stdout, (args, raw)
+    assert "\\x1b]0;pwned\\x07" in cli("show", "halcyon-rindler").stdout
+    assert "halcyon-rindler" in cli("find", "Harmless").stdout
