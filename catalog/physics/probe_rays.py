@@ -237,7 +237,8 @@ def probe_rays(document, exporter, context, *, chart, spec, values, coords, x0, 
     elif sol.status == 1 and len(sol.t_events[horizon_at]):
         termination = "horizon"
         detail = (f"approached a horizon: d{coords[0]}/d{lam} grew beyond {HORIZON_GROWTH:g} times its start "
-                  f"value at {lam} = {sol.t[-1]:.12g}, {_show(coords, x_end)} (the time coordinate is singular there)")
+                  f"value at {lam} = {sol.t[-1]:.12g}, {_show(coords, x_end)} (the time coordinate is singular "
+                  f"there: a horizon, or a curvature singularity)")
     elif sol.status == 1 and leaves_at is not None and len(sol.t_events[leaves_at]):
         k = int(np.argmin(system.domain_margins(x_end)))
         termination = "domain-edge"
