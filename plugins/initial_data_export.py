@@ -28,6 +28,7 @@ if TYPE_CHECKING:
     from gravicat.format.metricfile import MetricDocument
 
 PAIRS = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
+_SLICES: dict = {}  # (content hash, chart, budget) -> the last Slice made
 
 
 @dataclass
@@ -64,7 +65,12 @@ def _prepare(document, context, exporter) -> _Data:
                          f"the metric depends on the arbitrary function(s) {', '.join(map(str, spec.functions))}, "
                          "whose values numeric code cannot know")
     initial = is_initial_data_spec(spec)
-    sl = slice_of_chart(spec, budget=context.budget, source=f"--to {exporter.name}")
+    key = (document.hash, chart, context.budget)
+    sl = _SLICES.get(key)
+    if sl is None:  # the C and NumPy targets of one chart (as the site makes them) share one split
+        sl = slice_of_chart(spec, budget=context.budget, source=f"--to {exporter.name}")
+        _SLICES.clear()
+        _SLICES[key] = sl
     fixed = fixed_parameters(document, spec, context.params)
 
     def fix(e):
