@@ -235,3 +235,20 @@ def test_grid_file_layout_and_provenance(cli, tmp_path):
         assert fh["gamma"][0, 0, 2, 0, 4] == pytest.approx(psi**4, rel=1e-12)
         assert fh["gamma"][0, 1, 2, 0, 4] == 0 and np.all(np.asarray(fh["K"]) == 0)
     assert not list(tmp_path.glob(".*part*"))  # the temporary file was renamed, not left behind
+
+
+def test_schwarzschild_adm_mass_in_every_chart_with_spacelike_slices(cli):
+    # ADM mass M in every chart whose slices satisfy the ADM conditions (ADM 1962; Gourgoulhon 2012, sec. 8.3);
+    # the Eddington-Finkelstein charts have null slices (refused), Painleve-Gullstrand K ~ r^-3/2 (not
+    # computed, with the rate), Kruskal-Szekeres and Lemaitre slices are not in (r, theta, phi) or (x, y, z)
+    out, data = _split_json(cli, str(bundled_path("schwarzschild")), "--set", "M=5/4")
+    assert out.exit_code == 0
+    by_chart = {c["chart"]: c for c in data["charts"]}
+    assert {r["chart"] for r in data["refused"]} == {"ingoing-eddington-finkelstein", "outgoing-eddington-finkelstein"}
+    assert all("null" in r["error"] for r in data["refused"])
+    for name in ("schwarzschild", "isotropic"):
+        assert by_chart[name]["adm"]["mass"] == pytest.approx(1.25, rel=1e-4), name
+    assert "r^-1.50" in by_chart["painleve-gullstrand"]["adm"]["note"]
+    for name in ("kruskal-szekeres", "lemaitre"):
+        assert by_chart[name]["adm"]["mass"] is None and by_chart[name]["adm"]["note"], name
+    assert all(c["status"] == "proved" for ch in data["charts"] for c in ch["constraints"].values())

@@ -162,10 +162,54 @@ def _check_spacelike(geo, t: int, source: str) -> None:
 
 
 def _sym(geo, v):
-    """An exact value of ``geo`` as sympy (the engine's factored form; no further simplification)."""
+    """An exact value of ``geo`` as sympy (the engine's factored form), with removable zeros of the
+    denominator cancelled where cheap (:func:`_cancel_roots`)."""
     import sympy as sp
 
-    return sp.sympify(geo.to_sympy(v))
+    return _cancel_roots(sp.sympify(geo.to_sympy(v)))
+
+
+_CANCEL_LIMIT = 400  # operations: larger expressions are printed as the engine gives them
+
+
+def _cancel_roots(e):
+    """``e`` with common factors of numerator and denominator that involve a square root cancelled.
+
+    The engine keeps denominators free of square roots (it multiplies by conjugates), so a value such
+    as Kerr-Schild's ``beta^x = 2 M x / (r (r + 2M))``, ``r = sqrt(x^2 + y^2 + z^2)``, comes out as
+    ``2 M x (2M - r) r / (r^2 (4M^2 - r^2))``: equal, but 0/0 at the horizon ``r = 2M``, where the
+    slices are regular. For each ``sqrt(P)`` with ``P`` a polynomial, numerator and denominator are
+    rewritten with ``s = sqrt(P)`` and reduced modulo ``P - s^2`` (lex order), then cancelled; the
+    result is kept only when the denominator lost degree (something really cancelled). Expressions
+    of more than :data:`_CANCEL_LIMIT` operations are left as they are."""
+    import sympy as sp
+
+    try:
+        if sp.count_ops(e) > _CANCEL_LIMIT:
+            return e
+    except (TypeError, ValueError):  # pragma: no cover - an object count_ops does not know
+        return e
+    for p in sorted(e.atoms(sp.Pow), key=sp.default_sort_key):
+        if p.exp != sp.S.Half or not p.base.is_polynomial() or not p.base.free_symbols:
+            continue
+        s = sp.Dummy("s", positive=True)
+        base = sp.expand(p.base)
+        num, den = sp.fraction(sp.together(e.xreplace({p: s})))
+        if not den.has(*base.free_symbols):
+            continue
+        others = sorted((num.free_symbols | den.free_symbols) - base.free_symbols - {s}, key=str)
+        gens = [*sorted(base.free_symbols, key=str), *others, s]
+        try:
+            _, rn = sp.reduced(sp.expand(num), [base - s**2], *gens, order="lex")
+            _, rd = sp.reduced(sp.expand(den), [base - s**2], *gens, order="lex")
+            before = sp.Poly(rd, *gens).total_degree()
+            q = sp.cancel(rn / rd)
+            after = sp.Poly(sp.fraction(q)[1], *gens).total_degree()
+        except (sp.PolynomialError, sp.GeneratorsNeeded, ZeroDivisionError):
+            continue
+        if after < before:
+            e = sp.factor(q).xreplace({s: p})
+    return e
 
 
 def fix_parameters(spec, fixed: dict, *, source: str = "--set"):
