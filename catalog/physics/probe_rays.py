@@ -149,7 +149,7 @@ def probe_rays(document, exporter, context, *, chart, spec, values, coords, x0, 
             for name, value in comps.items():
                 k0[spatial[name]] = float(value)
             if not np.any(k0[1:]):
-                raise InputError("--velocity", None, "the direction of a null geodesic is not zero")
+                raise InputError("--velocity", None, "the direction of a null geodesic cannot be zero")
             k0[0] = _null_direction(g0, k0, coords)
             p0 = g0 @ k0
             if 0 in killing and p0[0] < 0:  # affine parameter with E = 1
