@@ -87,6 +87,10 @@ def test_bundled_entries_add_list_show_verify_export(empty_catalogue, tmp_path):
     r = cli("export", "brill-lindquist", "--to", "initial-data-numpy", "-o", str(out))
     assert r.exit_code == 0, r.output
     assert "status:    pass" in out.read_text()
+    r = cli("site", str(tmp_path / "site"))
+    assert r.exit_code == 0, r.output
+    page = (tmp_path / "site" / "entries" / "brill-lindquist.html").read_text()
+    assert "not a spacetime" in page and (tmp_path / "site" / "downloads" / "brill-lindquist.initial-data-c.h").exists()
     # a spacetime-only target refuses initial data with one line
     r = cli("export", "brill-lindquist", "--to", "c")
     assert r.exit_code == 2 and "not a spacetime" in _one_line(r)
