@@ -232,3 +232,77 @@ def test_a_regular_black_hole_core_violates_the_strong_condition():
     subs = {p: vals[str(p)] for p in geo.params}
     sec = (-ev["t"] + ev["r"] + ev["theta"] + ev["phi"]).subs(subs).subs(r, sp.Rational(1, 10))
     assert sec.evalf() < 0
+
+
+# -- principal null directions (gravicat.physics.petrov.principal_null_directions) -----------------------
+
+
+def test_kerr_principal_null_directions_are_kinnersleys_l_and_n():
+    # the repeated principal null directions of Kerr are those of the Kinnersley tetrad in Boyer-Lindquist
+    # coordinates, l = ((r^2 + a^2)/Delta, 1, 0, a/Delta) and n = (r^2 + a^2, -Delta, 0, a)/(2 Sigma)
+    # (Chandrasekhar, The Mathematical Theory of Black Holes, 1983, ch. 6; Teukolsky 1973, eq. 4.4; recalled
+    # from memory); scaled so that the t component is 1, compared to 1e-10
+    geo = _geometry("kerr", "boyer-lindquist")
+    pd = geo.sample_points()[0]
+    got = P.principal_null_directions(pd, "D")
+    assert got is not None and [d["multiplicity"] for d in got["directions"]] == [2, 2]
+    num = {str(k): mp.mpf(v) for k, v in pd.sample.numeric.items()}
+    M, a, r = num["M"], num["a"], num["r"]
+    Delta = r * r - 2 * M * r + a * a
+    expected = [[1, Delta / (r * r + a * a), 0, a / (r * r + a * a)],
+                [1, -Delta / (r * r + a * a), 0, a / (r * r + a * a)]]
+    vectors = [[mp.mpf(x) for x in d["vector"]] for d in got["directions"]]
+    for want in expected:
+        assert any(all(abs(v[i] - want[i]) < mp.mpf(10) ** -10 for i in range(4)) for v in vectors)
+    for k in ("Psi0", "Psi1", "Psi3", "Psi4"):  # the adapted tetrad: only Psi2 (Stephani et al. 2003, sec. 4.3)
+        assert got["adapted_weyl_scalars"][k] == "0.0"
+
+
+def test_plane_wave_principal_null_direction_is_the_wave_vector():
+    # a plane wave in Brinkmann coordinates is type N with the covariantly constant null vector d/dv as its
+    # quadruple principal null direction (Stephani et al. 2003, sec. 24.5; recalled from memory); no coordinate
+    # hypersurface is spacelike at a generic point, so the tetrad starts from a timelike covector of g^ab
+    geo = _geometry("plane-wave", "brinkmann")
+    got = P.principal_null_directions(geo.sample_points()[0], "N")
+    assert got is not None
+    (d,) = got["directions"]
+    assert d["multiplicity"] == 4 and [mp.mpf(x) for x in d["vector"]] == [0, 1, 0, 0]
+
+
+# -- sign analysis on the region (gravicat.physics.positivity) -------------------------------------------
+
+
+def _sign(entry, chart, text):
+    import sympy as sp
+
+    from gravicat.physics.positivity import region_relations, sign_on_region
+
+    spec = build_chart(read_bundled(bundled_path(entry)), chart)
+    names = {str(s): s for s in spec.coords + spec.params}
+    return sign_on_region(sp.sympify(text, locals=names), spec.coords, spec.params, region_relations(spec))
+
+
+def test_signs_proved_on_the_region_and_none_when_not_shown():
+    # Delta = r^2 - 2 M r + a^2 > 0 outside the outer horizon r > M + sqrt(M^2 - a^2) (a root of Delta)
+    assert _sign("kerr", "boyer-lindquist", "r**2 - 2*M*r + a**2") == "positive"
+    # cos(eta) - 1 < 0 for 0 < eta < 2 pi, so this density of the closed dust universe is positive
+    assert _sign("flrw-closed-dust", "conformal", "-3/(4*pi*A**2*(cos(eta) - 1)**3)") == "positive"
+    assert _sign("reissner-nordstrom", "static", "Q**2/(8*pi*r**4)") == "nonnegative"
+    # r - 3 M changes sign on r > 2 M: never claimed either way
+    assert _sign("schwarzschild", "schwarzschild", "r - 3*M") is None
+    # r^3 - M l^2 changes sign on r > 0 (Hayward's core), but not on r > 2 M with l <= 4 M/(3 sqrt 3)
+    assert _sign("hayward", "ingoing-eddington-finkelstein", "r**3 - M*l**2") is None
+    assert _sign("hayward", "static", "r**3 - M*l**2") == "positive"
+
+
+def test_closed_dust_universe_holds_every_condition_proved():
+    # dust, rho > 0 and p = 0: every energy condition holds (Hawking & Ellis 1973, sec. 4.3); Friedmann's
+    # closed model in conformal time, rho = 3 A/(4 pi a^3) with a = A (1 - cos eta) (recalled from memory)
+    from gravicat.physics.energy_proof import proved_energy_conditions
+
+    geo = _geometry("flrw-closed-dust", "conformal")
+    got = proved_energy_conditions(geo, geo.spec)
+    assert got is not None
+    for cond in ("null", "weak", "strong", "dominant"):
+        assert (got[cond]["status"], got[cond]["method"]) == ("holds", "proved")
+    assert got["eigenvalues"]["timelike"] == "eta"

@@ -172,6 +172,40 @@ class _Bivector:
         B = combo(reD * 4, absD * 4)
         return self.mul(A, B)
 
+    def d_identity(self):
+        """``p2^2 Q^2 - p2 p3 Q - 2 p3^2`` on the real form (6x6): zero exactly when Q's minimal polynomial is
+        ``(x - l)(x + 2 l)``, ``l = -p3/p2`` (given p2 != 0). A complex scalar ``x + i s y`` acts on bivectors
+        as ``x + y *`` = ``x + s^2 y R`` (``* = s R``, the convention of :meth:`invariants`), so every entry is
+        rational; its degree is about half that of :meth:`d_product`'s."""
+        a2, b2, a3, b3 = self.invariants()
+        s2, X, iz = self.s2, self.X, self._iz
+        x1, y1 = a2 * a2 - s2 * b2 * b2, a2 * b2 * 2
+        x2, y2 = a2 * a3 - s2 * b2 * b3, a2 * b3 + a3 * b2
+        x3, y3 = a3 * a3 - s2 * b3 * b3, a3 * b3 * 2
+        W, W2, R = self.W, self.W2, self.R
+        RW2, RW = self.mul(R, W2), self.mul(R, W)
+        c1, c2, c3 = s2 * y1, s2 * y2, s2 * y3 * 2
+        out = []
+        for i in range(6):
+            row = []
+            for j in range(6):
+                terms = []
+                if not iz(W2[i][j]):
+                    terms.append(x1 * W2[i][j])
+                if not iz(RW2[i][j]):
+                    terms.append(c1 * RW2[i][j])
+                if not iz(W[i][j]):
+                    terms.append(-(x2 * W[i][j]))
+                if not iz(RW[i][j]):
+                    terms.append(-(c2 * RW[i][j]))
+                if i == j:
+                    terms.append(-(x3 * 2))
+                if not iz(R[i][j]):
+                    terms.append(-(c3 * R[i][j]))
+                row.append(X._sum(terms) if terms else X.zero)
+            out.append(row)
+        return out
+
 
 def weyl_bivector(X):
     """The Weyl tensor as the bivector map ``W[(ab)][(cd)] = C^ab_cd`` (a < b, c < d; 4 dimensions), from the
@@ -236,7 +270,7 @@ def type_identities(X, ptype: str) -> dict:
         a2, b2, a3, b3 = B.invariants()
         out.update({"Re I": a2, "Im I/s": b2, "Re J": a3, "Im J/s": b3})
     if ptype == "D":
-        P = B.d_product()
+        P = B.d_identity()
         for i in range(6):
             for j in range(6):
                 out[f"mD[{i},{j}]"] = P[i][j]
@@ -265,7 +299,7 @@ def point_type(pd) -> tuple[str, bool]:
         a2, b2, a3, b3 = B.invariants()
         if z(a2) and z(b2):
             return ("N" if all(z(v) for v in _all(B.W2)) else "III"), loose[0]
-        return ("D" if all(z(v) for v in _all(B.d_product())) else "II"), loose[0]
+        return ("D" if all(z(v) for v in _all(B.d_identity())) else "II"), loose[0]
 
 
 def petrov_type(geometry, *, budget: float | None = None) -> PetrovResult:

@@ -278,8 +278,8 @@ class _Analyser:
             return None
         sign, strict = (1 if total == "positive" else -1), True
         for f, k in factors:
-            if k % 2 == 0:
-                strict = strict and denominator
+            if k % 2 == 0:  # >= 0; > 0 where the base has a strict sign (or in a denominator)
+                strict = strict and (denominator or self._poly_sign(f) in ("positive", "negative"))
                 continue
             s = self._poly_sign(f)
             if s is None:
@@ -360,7 +360,7 @@ def sign_on_region(expr, coords, params, relations) -> str | None:
             coeff, factors = sp.factor_list(piece)
             for f, k in [(coeff, 1), *factors]:
                 if k % 2 == 0:
-                    strict = strict and is_den
+                    strict = strict and (is_den or an.sign(f) in ("positive", "negative"))
                     continue
                 s = an.sign(f)
                 if s is None and sub:
