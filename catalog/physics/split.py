@@ -251,7 +251,25 @@ def fix_parameters(spec, fixed: dict, *, source: str = "--set"):
         param_ranges=relations(spec.param_ranges, "parameter range"),
         defaults={k: v for k, v in spec.defaults.items() if k not in fixed},
         observers={}, invariants={}, limits=(), transforms={}, flat_when=(),
-        extra={**spec.extra, "fixed": {str(k): v for k, v in fixed.items()}})
+        extra={**{k: _substituted(v, fixed) for k, v in spec.extra.items()},
+               "fixed": {str(k): v for k, v in fixed.items()}})
+
+
+def _substituted(value, fixed):
+    """``value`` (sympy objects, possibly in tuples, lists or dataclasses such as an initial-data chart's
+    parts) with ``fixed`` substituted; anything else unchanged."""
+    import dataclasses
+
+    import sympy as sp
+
+    if isinstance(value, (sp.Basic, sp.MatrixBase)):
+        return value.xreplace(fixed)
+    if isinstance(value, (tuple, list)):
+        return type(value)(_substituted(v, fixed) for v in value)
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return dataclasses.replace(value, **{f.name: _substituted(getattr(value, f.name), fixed)
+                                             for f in dataclasses.fields(value) if f.init})
+    return value
 
 
 def split_chart(spec, *, time: str | None = None, budget: float = 20.0, source: str = "split") -> Slice:
