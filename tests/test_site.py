@@ -170,3 +170,22 @@ def test_cli_site_only(small, cli, tmp_path):
     assert bad.exit_code == 2 and bad.stderr.strip() == ("Error: --only: no entry 'no-such-entry' in the catalogue "
                                                          "(see 'gravicat list')")
     assert sorted(p.name for p in (out / "entries").iterdir()) == ["minkowski.html"]  # nothing lost
+
+
+def test_batched_computation_retries_a_stopped_batch_one_entry_per_child(monkeypatch):
+    """Entries are computed in batches (one child each); when a batch reaches its CPU cap, the entries it
+    did not send are computed again one per child, so only the runaway entry ends without its parts."""
+    from gravicat.api.site import build
+
+    def fake(e, exporters):
+        if e["slug"] == "runaway":
+            while True:
+                pass
+        return {"math": {}, "files": {}, "slug": e["slug"]}
+
+    monkeypatch.setattr(build, "compute_entry", fake)
+    monkeypatch.setattr(build, "_preload", lambda: None)
+    sources = [{"slug": "runaway" if k == 1 else f"e{k}"} for k in range(9)]  # batches of 3 with one job
+    values, stopped = build.compute_all(sources, {}, jobs=1, cpu_seconds=1.0)
+    assert sorted(values) == [0, 2, 3, 4, 5, 6, 7, 8] and all(values[i]["slug"] == f"e{i}" for i in values)
+    assert list(stopped) == [1] and stopped[1].limit == "cpu"

@@ -34,6 +34,7 @@ SITE_FORMAT = "gravicat-site/1"
 RENDERER_VERSION = "2"  # bump when a page changes shape: every entry is rendered again
 MANIFEST = "manifest.json"
 ENTRY_CPU_SECONDS = 120.0  # one entry's computed parts (MathML, orbits, exports) in a forked child
+BATCH_MAX = 12  # entries computed one after the other in one child (see compute_all)
 STATIONARY_TAGS = frozenset({"stationary", "static"})
 NOT_STATIONARY = ("the entry is not tagged stationary or static: circular orbits, their landmarks and the effective "
                   "potential are drawn for time-independent metrics only")
@@ -53,9 +54,10 @@ class SiteReport:
     removed: list[str] = field(default_factory=list)
     index_written: bool = False
     problems: list[str] = field(default_factory=list)
+    computed: int = 0  # computations made (MathML, orbits, exports): entries sharing one are computed once
 
     def to_json(self) -> dict[str, Any]:
-        return {"out_dir": self.out_dir, "entries": self.entries, "rendered": self.rendered,
+        return {"out_dir": self.out_dir, "entries": self.entries, "rendered": self.rendered, "computed": self.computed,
                 "unchanged": self.unchanged, "written": self.written, "removed": self.removed,
                 "index_written": self.index_written, "problems": self.problems}
 
@@ -155,6 +157,49 @@ def _preload() -> None:
         pass
 
 
+def _compute_batch(emit, batch: list[tuple[int, dict[str, Any]]], exporters: dict[str, Any]) -> None:
+    for i, e in batch:
+        emit((i, compute_entry(e, exporters)))
+
+
+def compute_all(sources: list[dict[str, Any]], exporters: dict[str, Any], *, jobs: int,
+                cpu_seconds: float) -> tuple[dict[int, dict[str, Any]], dict[int, Any]]:
+    """The computed parts of every entry of ``sources``: (index -> parts, index -> the
+    :class:`gravicat.engine.fork.Outcome` of an entry whose computation was stopped).
+
+    Entries are computed in batches, one forked child per batch (``jobs`` at a time), each child
+    sending every entry's parts as soon as they are made: entries of one batch share what sympy and
+    the orbit library cache, which halves the CPU time of a full build against one child per entry.
+    A batch's child has the CPU-time cap of one entry, ``cpu_seconds``; the entries of a batch that
+    reached it, or whose child stopped otherwise, are computed again one per child, each under
+    ``cpu_seconds``, so a runaway entry costs at most twice its cap and never stops the others."""
+    from gravicat.engine.fork import run_many
+
+    values: dict[int, dict[str, Any]] = {}
+    stopped: dict[int, Any] = {}
+    if not sources:
+        return values, stopped
+    _preload()
+    size = max(1, min(BATCH_MAX, -(-len(sources) // (jobs * 4))))  # about four batches per job
+    groups = [list(range(k, min(k + size, len(sources)))) for k in range(0, len(sources), size)]
+
+    def arrived(_task: int, item) -> None:
+        values[item[0]] = item[1]
+
+    run_many([lambda emit, g=g: _compute_batch(emit, [(i, sources[i]) for i in g], exporters) for g in groups],
+             jobs=jobs, cpu_seconds=cpu_seconds, on_item=arrived)
+    again = [i for i in range(len(sources)) if i not in values]
+    if again:
+        outs = run_many([lambda emit, i=i: compute_entry(sources[i], exporters) for i in again], jobs=jobs,
+                        cpu_seconds=cpu_seconds)
+        for i, oc in zip(again, outs, strict=True):
+            if oc.finished:
+                values[i] = oc.value
+            else:
+                stopped[i] = oc
+    return values, stopped
+
+
 def _render(e: dict[str, Any], computed: dict[str, Any], present: set[str]) -> dict[str, bytes]:
     from gravicat.api.site.pages import entry_html, entry_page, safe_name
     from gravicat.format.metricfile import canonical_json
@@ -224,7 +269,6 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
                jobs: int = 1, cpu_seconds: float = ENTRY_CPU_SECONDS) -> SiteReport:
     """Render ``entries`` (from :func:`collect`) into ``out_dir``; see the module docstring."""
     from gravicat.api.site.pages import index_page
-    from gravicat.engine.fork import run_many
 
     out = Path(out_dir)
     _prepare_out(out)
@@ -241,26 +285,23 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
 
     todo = [e for e in entries if not intact(e["slug"])]
     report.unchanged = len(entries) - len(todo)
-    memo: dict[str, int] = {}  # identical content (the id aside) is computed once per build
-    tasks, sources, owner = [], [], []
+    memo: dict[str, int] = {}  # the same computation (see computation_key) is made once per build
+    sources, owner = [], []
     for e in todo:
-        content = json.dumps({k: v for k, v in e["document"].items() if k != "id"}, sort_keys=True)
-        ck = hashlib.sha256((content + e["status"] + e["hash"] * (e["status"] in _ACCEPTED)).encode()).hexdigest()
+        ck = computation_key(e)
         if ck not in memo:
-            memo[ck] = len(tasks)
-            tasks.append(lambda emit, e=e: compute_entry(e, exporters))
+            memo[ck] = len(sources)
             sources.append(e)
         owner.append(memo[ck])
-    if tasks:
-        _preload()
-    outcomes = run_many(tasks, jobs=max(1, jobs), cpu_seconds=cpu_seconds) if tasks else []
+    values, stopped = compute_all(sources, exporters, jobs=max(1, jobs), cpu_seconds=cpu_seconds)
+    report.computed = len(sources)
     new_entries: dict[str, Any] = {}
     new_files: dict[str, str] = {}
     for e, i in zip(todo, owner, strict=True):
-        oc = outcomes[i]
-        if oc.finished:
-            computed = oc.value if sources[i] is e else _rebased(oc.value, e)
+        if i in values:
+            computed = values[i] if sources[i] is e else _rebased(values[i], e, sources[i])
         else:
+            oc = stopped[i]
             why = (f"the computation reached its CPU-time cap of {cpu_seconds:g} s" if oc.limit == "cpu"
                    else f"the computation stopped ({oc.limit or oc.error or 'the child ended'})")
             report.problems.append(f"{e['slug']}: {why}")
@@ -299,12 +340,30 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
     return report
 
 
-def _rebased(computed: dict[str, Any], e: dict[str, Any]) -> dict[str, Any]:
-    """The computed parts of another entry with the same content (the id aside, and unverified, so without
-    exports), for ``e``: only the figure's file name carries the id."""
+def computation_key(e: dict[str, Any]) -> str:
+    """What the computed parts of an entry page (:func:`compute_entry`) depend on, hashed: the document
+    without its presentation-only fields (id, title, summary, notes, references, tags: the tags count
+    only through "stationary or static"), the status, and for a verified revision its hash (its exports
+    name the entry and revision). Entries with the same key (variants of one metric under other names,
+    unverified) are computed once per build."""
+    doc = e["document"]
+    inputs = {k: v for k, v in doc.items() if k not in ("id", "title", "summary", "notes", "references", "tags")}
+    inputs["stationary"] = bool(STATIONARY_TAGS & set(doc["tags"]))
+    inputs["status"] = e["status"]
+    if e["status"] in _ACCEPTED:
+        inputs["revision"] = [e["hash"], e["slug"], e["number"], e["created_at"], e["results"]]
+    return hashlib.sha256(json.dumps(inputs, sort_keys=True, default=str).encode("utf-8")).hexdigest()
+
+
+def _rebased(computed: dict[str, Any], e: dict[str, Any], owner: dict[str, Any]) -> dict[str, Any]:
+    """The computed parts of ``owner``, an entry with the same computation key (unverified, so without
+    exports), for ``e``: the figure's file name carries the id, and a message may name the source."""
     from gravicat.api.site.pages import safe_name
 
     out = {k: v for k, v in computed.items() if k not in ("files", "figure")}
+    if owner["source"] != e["source"]:
+        old, new = (json.dumps(x["source"])[1:-1] for x in (owner, e))
+        out = json.loads(json.dumps(out).replace(old, new))
     out["files"] = {}
     if computed.get("figure"):
         out["figure"] = f"figures/{safe_name(e['slug'])}.svg"
