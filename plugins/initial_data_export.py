@@ -65,6 +65,10 @@ def _prepare(document, context, exporter) -> _Data:
                          f"the metric depends on the arbitrary function(s) {', '.join(map(str, spec.functions))}, "
                          "whose values numeric code cannot know")
     initial = is_initial_data_spec(spec)
+    if not initial and len(spec.coords) != 4:
+        raise InputError(document.source, f"charts.{chart}.coordinates",
+                         f"the initial-data targets write 3+1 data: this chart has {len(spec.coords)} coordinates, "
+                         "not 4")
     key = (document.hash, chart, context.budget)
     sl = _SLICES.get(key)
     if sl is None:  # the C and NumPy targets of one chart (as the site makes them) share one split

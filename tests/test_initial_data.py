@@ -319,6 +319,12 @@ int main(void) {{
         assert np.allclose(v, want, rtol=1e-10, atol=1e-12)
 
 
+@pytest.mark.parametrize("subject", ["btz.toml", "myers-perry-5d.toml"])
+def test_only_four_dimensional_spacetimes_are_split_for_export(cli, subject):
+    r = cli("export", str(SPACETIMES / subject), "--to", "initial-data-numpy", "--allow-unverified")
+    assert r.exit_code == 2 and "3+1 data" in _one_line(r)
+
+
 def test_hostile_title_stays_escaped(cli, tmp_path):
     title = 'BL */ #include <stdlib.h> """ \\ \' end'
     text = BL_TEXT.replace('title = "Brill-Lindquist data: two black holes at a moment of time symmetry"',
