@@ -51,15 +51,25 @@ def _entry_ref(subject: str, what: str):
     return ref
 
 
+# PostgreSQL: insufficient_privilege, read_only_sql_transaction (a standby, default_transaction_read_only)
+_READ_ONLY_STATES = {"42501", "25006"}
+
+
 def database_failure(exc: Exception):
     """A SQLAlchemy failure as the one-line :class:`gravicat.DatabaseError` users see, else None
     (anything else is a bug and keeps its traceback)."""
     if not type(exc).__module__.startswith("sqlalchemy"):
         return None
-    from sqlalchemy.exc import IntegrityError, OperationalError
+    from sqlalchemy.exc import DBAPIError, IntegrityError, OperationalError
 
     from gravicat.errors import DatabaseError
 
+    orig = getattr(exc, "orig", None)
+    if isinstance(exc, DBAPIError) and (getattr(orig, "sqlstate", None) in _READ_ONLY_STATES
+                                        or getattr(orig, "sqlite_errorname", None) == "SQLITE_READONLY"):
+        # a role allowed only to read a shared catalogue, a read-only server, a read-only file
+        return DatabaseError(f"the catalogue is read-only for this user: {str(orig).splitlines()[0]}; "
+                             "this command needs write access, nothing was written")
     if isinstance(exc, IntegrityError):
         return DatabaseError(f"the database refused the change (a concurrent edit?): "
                              f"{str(exc.orig).splitlines()[0]}; nothing was written, try again")
