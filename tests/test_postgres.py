@@ -305,3 +305,43 @@ def test_a_control_character_in_a_text_field_is_refused_alike(any_url, cli, tmp_
     assert line.startswith(f"Error: {hostile}: title: contains the control character U+{code}")
     assert "INSERT" not in added.output and "\x00" not in added.output
     assert json.loads(cli("list", "--json", db=any_url).stdout) == []
+
+
+# --------------------------------------------------------------------------- a read-only role (issue 14 item 8)
+
+
+def test_a_role_that_may_only_read_lists_and_gets_one_line_on_writes(pg_url, cli, tmp_path):  # noqa: F811
+    """The group's shared catalogue read through a role granted SELECT only: reading works; add,
+    remove and init end with one line (exit 2), not a driver traceback, and nothing changes."""
+    import uuid
+
+    import psycopg
+    from pg import _libpq
+    from sqlalchemy.engine import make_url
+
+    assert cli("init", "--empty", db=pg_url).exit_code == 0
+    assert cli("add", str(FIXTURE), db=pg_url).exit_code == 0
+    role = f"reader_{uuid.uuid4().hex[:8]}"
+    with psycopg.connect(_libpq(pg_url), autocommit=True) as conn:
+        conn.execute(f'CREATE ROLE "{role}" LOGIN')
+        conn.execute(f'GRANT SELECT ON ALL TABLES IN SCHEMA public TO "{role}"')
+    reader = make_url(pg_url).set(username=role).render_as_string(hide_password=False)
+    try:
+        listed = cli("list", "--json", db=reader)
+        assert listed.exit_code == 0 and [r["id"] for r in json.loads(listed.stdout)] == ["halcyon-rindler"]
+        assert cli("show", "halcyon-rindler", db=reader).exit_code == 0
+        second = tmp_path / "second.toml"
+        second.write_text(FIXTURE.read_text(encoding="utf-8").replace('id = "halcyon-rindler"',
+                                                                      'id = "halcyon-rindler-two"'), encoding="utf-8")
+        for args in (["add", str(second)], ["remove", "halcyon-rindler", "--yes"], ["init"]):
+            done = cli(*args, db=reader)
+            line = _one_error_line(done)
+            assert done.exit_code == 2, args
+            assert line.startswith("Error: the catalogue is read-only for this user: permission denied for table")
+            assert line.endswith("nothing was written")
+        assert [r["id"] for r in json.loads(cli("list", "--json", db=pg_url).stdout)] == ["halcyon-rindler"]
+    finally:
+        with psycopg.connect(_libpq(pg_url), autocommit=True) as conn:
+            conn.execute(f'REVOKE ALL ON ALL TABLES IN SCHEMA public FROM "{role}"')
+            conn.execute(f'DROP OWNED BY "{role}"')
+            conn.execute(f'DROP ROLE "{role}"')
