@@ -155,6 +155,45 @@ def test_painleve_gullstrand_slice_and_a_slipped_sign(cli, tmp_path):
     assert ham["status"] == "fail" and {"M", "r", "theta", "phi"} <= set(ham["counterexample"]["point"])
 
 
+SPHERE = """
+kind = "initial-data"
+id = "round-three-sphere"
+title = "A round three-sphere at a moment of time symmetry"
+field-equations = "CLAIM"
+[parameters.a]
+assume = ["positive"]
+default = "2"
+[charts.hyperspherical]
+coordinates = ["chi", "theta", "phi"]
+domain = ["0 < chi < pi", "0 < theta < pi"]
+spatial-metric = [["a**2", 0, 0], [0, "a**2*sin(chi)**2", 0], [0, 0, "a**2*sin(chi)**2*sin(theta)**2"]]
+time-symmetric = true
+EXTRA
+"""
+
+
+@pytest.mark.parametrize("claim, extra, status", [
+    # de Sitter's waist t = 0 in global coordinates, ds^2 = -dt^2 + a^2 cosh^2(t/a) dOmega_3^2: K_ij = 0 and
+    # R = 6/a^2 = 2 Lambda with Lambda = 3/a^2 (Hawking and Ellis, The Large Scale Structure of Space-Time,
+    # 1973, section 5.2 - recalled from memory)
+    ("lambda-vacuum", 'cosmological-constant = "3/a**2"', 0),
+    ("lambda-vacuum", 'cosmological-constant = "2/a**2"', 1),
+    # closed dust universe at its maximum expansion (H = 0): 8 pi rho / 3 = 1/a^2 (Friedmann's equation,
+    # e.g. Weinberg, Gravitation and Cosmology, 1972, eq. 15.1.20 - recalled from memory)
+    ("matter", 'matter = { density = "3/(8*pi*a**2)" }', 0),
+    ("matter", 'matter = { density = "3/(8*pi*a**2)", momentum = { chi = "1/a" } }', 1),
+])
+def test_lambda_and_matter_claims(cli, tmp_path, claim, extra, status):
+    path = _write(tmp_path, "sphere.toml", SPHERE.replace("CLAIM", claim).replace("EXTRA", extra))
+    r = cli("check", str(path), "--only", "constraints", "--json")
+    assert r.exit_code == status, r.output
+    checks = {c["check"]: c["status"] for c in json.loads(r.stdout)["charts"][0]["checks"]}
+    if status == 0:
+        assert checks == {"constraints.hamiltonian": "pass", "constraints.momentum": "pass"}
+    else:
+        assert "fail" in checks.values()
+
+
 def test_adm_masses_of_the_bundled_data():
     from gravicat.physics.adm import adm_mass
     from gravicat.physics.initial_data import initial_slice
