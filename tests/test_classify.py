@@ -306,3 +306,25 @@ def test_closed_dust_universe_holds_every_condition_proved():
     for cond in ("null", "weak", "strong", "dominant"):
         assert (got[cond]["status"], got[cond]["method"]) == ("holds", "proved")
     assert got["eigenvalues"]["timelike"] == "eta"
+
+
+def test_vaidya_null_dust_conditions_depend_on_the_mass_function():
+    # ingoing Vaidya: T_ab = (dm/dv)/(4 pi r^2) k_a k_b with k = -dv null, so 8 pi T_vv = 2 m'(v)/r^2 and every
+    # energy condition holds exactly where dm/dv >= 0 (Griffiths & Podolsky, Exact Space-Times, 2009, sec. 9.5;
+    # Hawking & Ellis 1973, sec. 4.3, type II; recalled from memory)
+    import sympy as sp
+
+    from gravicat.physics.classify import classify_chart
+
+    geo = _geometry("vaidya", "ingoing")
+    out = classify_chart(geo.spec, budget=10)
+    matter = out["matter"]
+    assert matter["hawking_ellis_type"] == "II"
+    text = matter["eigenvalues"]["null_dust"].rpartition("= ")[2]
+    v, r = (next(c for c in geo.coords if str(c) == name) for name in ("v", "r"))
+    m = next(f for f in geo.spec.functions if str(f.func) == "m")
+    got = sp.sympify(text, locals={"m": m.func, "v": v, "r": r})
+    assert sp.simplify(got - 2 * sp.Derivative(m, v) / r**2) == 0
+    for cond in ("null", "weak", "strong", "dominant"):
+        item = out["energy_conditions"][cond]
+        assert item["status"] == "depends on m(v)" and item["counterexample"]["vector_kind"] == "null"

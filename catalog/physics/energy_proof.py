@@ -197,7 +197,7 @@ def _proved(geometry, spec, include_lambda):
         out["eigenvalues"] = {"rho": "0", "pressures": {}, "timelike": None}
         return out
     if not all(geometry.is_zero(M[a][b]) for a in range(n) for b in range(n) if a != b):
-        return None
+        return _null_dust(geometry, spec, M, include_lambda)
     blocks = _blocks(geometry)
     for B in blocks:
         if not all(geometry.is_zero(M[B[0]][B[0]] - M[a][a]) for a in B[1:]):
@@ -436,3 +436,80 @@ def _inside(point, trig, relations) -> bool:
         except TypeError:
             return False
     return True
+
+
+# ---------------------------------------------------------------------------
+# null dust: T_ab = c k_a k_b with k null (Hawking-Ellis type II with zero eigenvalues)
+
+
+def _null_dust(geometry, spec, M, include_lambda):
+    """The conditions when ``T^a_b T^b_c = 0`` exactly (and T != 0): then T_ab = c k_a k_b with k null (a
+    g-self-adjoint map whose square is 0 has a totally null image, a line in Lorentzian signature), and
+    every one of the four conditions holds exactly where c >= 0 (T(v, v) = c (k.v)^2, trace 0, and the flux
+    -T^a_b u^b = c |k.u| k^a is null and future-directed; Hawking & Ellis 1973, sec. 4.3, type II).
+    The sign of c is that of a diagonal component T_aa = c k_a^2 that is not identically zero."""
+    from gravicat.physics.matter import stress_energy8
+    from gravicat.physics.positivity import region_relations, sign_on_region
+
+    n = geometry.n
+    for a in range(n):
+        for c in range(n):
+            terms = [M[a][b] * M[b][c] for b in range(n) if not geometry._iz(M[a][b]) and not geometry._iz(M[b][c])]
+            if terms and not geometry.is_zero(geometry._sum(terms)):
+                return None
+    T = stress_energy8(geometry, spec, include_lambda)
+    index = next((a for a in range(n) if not geometry.is_zero(T[a][a])), None)
+    if index is None:
+        return None
+    names = [str(x) for x in geometry.coords]
+    label = f"8 pi T_{names[index]}{names[index]}"
+    c_expr = geometry.to_sympy(T[index][index])
+    sign = sign_on_region(c_expr, geometry.coords, geometry.params, region_relations(spec))
+    cex, good = None, 0
+    if sign not in ("positive", "nonnegative", "zero"):
+        for pd in geometry.sample_points():
+            try:
+                with pd.precision():
+                    s, exact = _sign_at(pd, pd.ev(T[index][index]))
+                    if s is not None and s < 0 and cex is None:
+                        cex = {"point": dict(pd.sample.shown), "quantity": f"{label} (= c k_a^2)",
+                               "value": _fmt_exact(pd.ev(T[index][index])), "exact": exact,
+                               **_null_dust_vector(pd, T)}
+                    good += s is not None and s >= 0
+            except (ZeroDivisionError, ValueError):
+                continue
+    out = {}
+    for cond in CONDITIONS:
+        if sign in ("positive", "nonnegative", "zero"):
+            out[cond] = {"status": "holds", "method": "proved", "counterexample": None,
+                         "where": f"null dust T_ab = c k_a k_b: c >= 0 proved on the domain ({label} >= 0)"}
+        elif cex is not None:
+            out[cond] = {"status": "violated", "method": "proved" if cex["exact"] else "sampled",
+                         "counterexample": {k: v for k, v in cex.items() if k != "exact"}}
+        elif good:
+            out[cond] = {"status": f"holds at {good} sample points", "method": "sampled", "counterexample": None,
+                         "where": f"null dust T_ab = c k_a k_b: c >= 0 ({label} >= 0) at the sample points"}
+        else:
+            out[cond] = {"status": "undecided", "method": "none", "counterexample": None}
+    out["hawking_ellis_type"] = "II"
+    out["eigenvalues"] = {"rho": None, "pressures": {}, "timelike": None,
+                          "null_dust": f"T_ab = c k_a k_b, k null, every eigenvalue 0; {label} = "
+                                       f"{c_expr}"}
+    return out
+
+
+def _null_dust_vector(pd, T):
+    """A null vector l of the automatic tetrad with T(l, l) < 0 at the point (numerical components)."""
+    import mpmath as mp
+
+    from gravicat.physics.petrov import _num, tetrad_at
+
+    with mp.workdps(40):
+        tet, _ = tetrad_at(pd)
+        if tet is None:
+            return {"vector": [], "vector_kind": "null"}
+        n = pd.n
+        Tn = [[_num(pd.ev(T[a][b])) if not pd._iz(T[a][b]) else mp.mpf(0) for b in range(n)] for a in range(n)]
+        best = min((tet["l"], tet["n"]), key=lambda v: mp.fsum(Tn[a][b] * v[a] * v[b] for a in range(n)
+                                                               for b in range(n)))
+        return {"vector": [mp.nstr(x, 15) for x in best], "vector_kind": "null"}
