@@ -115,6 +115,8 @@ def _status(item: dict) -> str:
     text = item["status"]
     if item.get("method") and item["method"] != "none":
         text += f" ({item['method']})"
+    if item["status"] == "violated" and "whole domain" in item.get("where", ""):
+        text += " everywhere"
     return text
 
 

@@ -234,6 +234,9 @@ def _proved(geometry, spec, include_lambda):
         if bad is not None:
             out[cond] = {"status": "violated", "method": "proved" if bad["exact"] else "sampled",
                          "counterexample": {k: v for k, v in bad.items() if k != "exact"}}
+            everywhere = [k for k in keys if proved[k] == "negative"]
+            if everywhere:
+                out[cond]["where"] = f"{everywhere[0]} < 0 on the whole domain (proved)"
         elif all(proved[k] in ("zero", "positive", "nonnegative") for k in keys):
             out[cond] = {"status": "holds", "method": "proved", "counterexample": None,
                          "where": "proved on the domain and parameter ranges: "
