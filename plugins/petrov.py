@@ -60,18 +60,26 @@ class PetrovCheck:
 
     @staticmethod
     def _witness(geometry, declared: str) -> dict | None:
-        """A sample point where the type is certainly not ``declared`` (decided exactly there), or None."""
+        """A sample point where the type is not ``declared``: one decided exactly there if any, else one
+        decided with a zero test "0 within the working precision" (said so), else None."""
         from gravicat.physics.petrov import point_type
 
+        inexact = None
         for pd in geometry.sample_points():
             try:
                 found, loose = point_type(pd)
             except (ZeroDivisionError, ValueError):
                 continue
-            if found != declared and not loose:
-                return {"point": dict(pd.sample.shown), "component": "Petrov type",
-                        "residual": f"type {found} at this point (declared {declared})"}
-        return None
+            if found == declared:
+                continue
+            witness = {"point": dict(pd.sample.shown), "component": "Petrov type",
+                       "residual": f"type {found} at this point (declared {declared})"}
+            if not loose:
+                return witness
+            if inexact is None:
+                witness["residual"] += ", some invariants zero only within the working precision"
+                inexact = witness
+        return inexact
 
 
 @hookimpl
