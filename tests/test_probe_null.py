@@ -119,6 +119,9 @@ def test_kerr_inclined_timelike_orbit_keeps_carters_constant():
     assert out["termination"] == "completed", out["detail"]
     q0, q1 = _carter(out, a, 1.0), _carter(out, a, 1.0, at="end")
     assert q0 > 1e-3 and q1 == pytest.approx(q0, rel=1e-9)
+    # the probe finds the separation constant from the inverse metric itself: in Kerr it is Carter's Q
+    assert out["separation"]["initial"] == pytest.approx(q0, rel=1e-12)
+    assert out["drift"]["separation"]["max_rel_change"] < 1e-9
     polar = [p for p in out["turning_points"]["points"] if p["coordinate"] == "theta"]
     assert len(polar) >= 4 and {p["kind"] for p in polar} == {"minimum", "maximum"}
     z = _polar_turn(q0, out["energy"], out["angular_momentum"], a, 1.0)
@@ -138,6 +141,20 @@ def test_kerr_inclined_light_ray_from_impact_parameters():
     z = _polar_turn(q * q, 1.0, 5.0, a, 0.0)
     assert polar and all(math.cos(p["value"]) ** 2 == pytest.approx(z, rel=1e-7) for p in polar)
     assert out["drift"]["hamiltonian"] < 1e-10
+    assert out["separation"]["initial"] == pytest.approx(q * q, rel=1e-12)
+
+
+@pytest.mark.parametrize("entry", ["kerr-de-sitter", "kerr-anti-de-sitter"])
+def test_separation_constant_with_a_cosmological_constant_of_either_sign(entry):
+    # Carter (1968) separates the Hamilton-Jacobi equation with a cosmological constant as well: the constant
+    # the probe finds from the inverse metric is conserved along an inclined light ray (tolerance: common
+    # practice, no source)
+    out = run(entry, start="r=10,theta=pi/2", orbit="null", impact=5.0, theta_impact=4.0, tau=60, **TIGHT)
+    assert out["drift"]["separation"]["max_rel_change"] < 1e-9
+    # none for an equatorial ray (theta never moves), none in a chart that does not separate (Kerr-Schild)
+    assert "separation" not in run(entry, start="r=10,theta=pi/2", orbit="null", impact=5.0, tau=10)
+    ks = run("kerr", chart="kerr-schild", start="x=10,y=0,z=1", orbit="null", velocity="x=-1,z=0.1", tau=5)
+    assert "separation" not in ks
 
 
 # --------------------------------------------------------------------------- charged particles

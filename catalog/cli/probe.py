@@ -122,6 +122,9 @@ def _problems(report, max_drift) -> list[str]:
         worst = [("normalisation", drift["normalisation"])]
         if "hamiltonian" in drift:
             worst.append(("H", drift["hamiltonian"]))
+        if "separation" in drift:
+            sep = drift["separation"]
+            worst.append(("K", sep["max_rel_change"] if sep["max_rel_change"] is not None else sep["max_abs_change"]))
         worst += [(f"p_{k}", v["max_rel_change"] if v["max_rel_change"] is not None else v["max_abs_change"])
                   for k, v in drift["conserved"].items()]
         for name, value in worst:
@@ -168,6 +171,11 @@ def _print(r) -> None:
         rel = "" if v["max_rel_change"] is None else f"{v['max_rel_change']:.3e}"
         value = -v["initial"] if name == coords[0] else v["initial"]
         rows.append([label, f"{value:.15g}", f"{v['max_abs_change']:.3e}", rel])
+    if "separation" in r:
+        v = d["separation"]
+        rel = "" if v["max_rel_change"] is None else f"{v['max_rel_change']:.3e}"
+        rows.append(["separation constant K (Carter)", f"{r['separation']['initial']:.15g}",
+                     f"{v['max_abs_change']:.3e}", rel])
     for name, v in d.get("coordinates", {}).items():
         rows.append([f"{name} (circular orbit)", f"{r['start'][name]:.15g}", "", f"{v:.3e}"])
     lam = "lambda" if r["kind"] == "null" else "tau"

@@ -349,6 +349,15 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         elapsed = xs[-1, 0] - xs[0, 0]
         result["circular"]["Omega_measured"] = float((xs[-1, psi] - xs[0, psi]) / elapsed) if elapsed else None
         result["circular"]["orbits"] = float(abs(xs[-1, psi] - xs[0, psi]) / (2 * math.pi))
+    separation = None
+    if plan.polar is not None and np.ptp(xs[:, plan.polar]) > 1e-9 * (1.0 + abs(float(x0[plan.polar]))):
+        from gravicat.export.hamiltonian import hamiltonian_system
+        from gravicat.physics import probe_separable
+
+        system = hamiltonian_system(spec, values, source=document.source)
+        separation = probe_separable.report(system, plan.radial, plan.polar, x0, xs.T, momenta.T, 1.0)
+        if separation is not None:
+            drift["separation"] = separation[1]
     prov = provenance(document, context, exporter, chart)
     out = {
         "metric": document.id,
@@ -385,6 +394,8 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         "drift": drift,
         "seconds": round(seconds, 3),
     }
+    if separation is not None:
+        out["separation"] = separation[0]
     if 0 in killing:
         out["energy"] = -conserved[coords[0]]["initial"]
     if psi is not None:

@@ -98,6 +98,7 @@ def probe_rays(document, exporter, context, *, chart, spec, values, coords, x0, 
     from gravicat.export.codegen import provenance
     from gravicat.export.hamiltonian import hamiltonian_system
     from gravicat.format.assign import parse_assignments
+    from gravicat.physics import probe_separable
     from gravicat.physics import probe_stops as ps
     from gravicat.physics.probe import EDGE, HORIZON_GROWTH, _Caps, _show, _time_component
 
@@ -265,6 +266,10 @@ def probe_rays(document, exporter, context, *, chart, spec, values, coords, x0, 
         drift["energy"] = conserved[coords[0]]["max_rel_change"]
     if psi is not None and psi in killing:
         drift["angular_momentum"] = conserved[coords[psi]]["max_rel_change"]
+    separation = None if charge else probe_separable.report(system, plan.radial, plan.polar, x0, xs, pps,
+                                                             0.0 if null else 1.0)
+    if separation is not None:
+        drift["separation"] = separation[1]
     prov = provenance(document, context, exporter, chart)
     out: dict[str, Any] = {
         "metric": document.id,
@@ -301,6 +306,8 @@ def probe_rays(document, exporter, context, *, chart, spec, values, coords, x0, 
         "drift": drift,
         "seconds": round(seconds, 3),
     }
+    if separation is not None:
+        out["separation"] = separation[0]
     if charge:
         out["charge"] = float(charge)
         out["kinetic_momentum"] = dict(zip(coords, map(float, P0), strict=True))
