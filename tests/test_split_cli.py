@@ -44,7 +44,8 @@ def test_json_keys_and_isotropic_cartesian_slice(cli):
     # S. L. Shapiro, Numerical Relativity (2010), sec. 3.1 (recalled from memory).
     out, data = _split_json(cli, f"{CARTESIAN}:isotropic")
     assert out.exit_code == 0
-    assert set(data) >= {"metric", "charts"} and data["metric"] == "split-schwarzschild-cartesian"
+    assert set(data) >= {"metric", "charts", "status"} and data["metric"] == "split-schwarzschild-cartesian"
+    assert data["status"] == "proved" and data["refused"] == []
     (chart,) = data["charts"]
     assert KEYS <= set(chart)
     assert set(chart["constraints"]) == {"hamiltonian", "momentum"}
@@ -128,7 +129,9 @@ def test_slipped_sign_fails_a_constraint_with_a_counterexample(cli):
     # solution, so a constraint (Gauss-Codazzi: H = 2 G_ab n^a n^b) must fail at a point
     out = cli("split", str(SLIPPED), "--json")
     assert out.exit_code == 1, out.output
-    (chart,) = json.loads(out.stdout)["charts"]
+    data = json.loads(out.stdout)
+    assert data["status"] == "violated"
+    (chart,) = data["charts"]
     failed = [c for c in chart["constraints"].values() if c["status"] == "violated"]
     assert failed and all(c["counterexample"] and c["counterexample"]["point"] for c in failed)
     human = cli("split", str(SLIPPED))

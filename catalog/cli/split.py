@@ -174,8 +174,9 @@ def split(
     violated = [f"{r['chart']} ({k})" for r in reports for k, c in r["constraints"].items()
                 if c["status"] == "violated"]
     if as_json:
-        emit_json({"metric": doc.id, "charts": reports, "refused": errors,
-                   "status": "violated" if violated else "ok"})
+        statuses = {c["status"] for r in reports for c in r["constraints"].values()}
+        overall = next((s for s in ("violated", "inconclusive", "proved") if s in statuses), "skipped")
+        emit_json({"metric": doc.id, "charts": reports, "refused": errors, "status": overall})
     else:
         for rep in reports:
             _print_chart(doc.id, rep)
