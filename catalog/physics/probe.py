@@ -354,8 +354,12 @@ def probe(document, exporter, *, chart: str | None = None, params=None, start: s
         from gravicat.export.hamiltonian import hamiltonian_system
         from gravicat.physics import probe_separable
 
-        system = hamiltonian_system(spec, values, source=document.source)
-        separation = probe_separable.report(system, plan.radial, plan.polar, x0, xs.T, momenta.T, 1.0)
+        try:  # the exact inverse metric; beyond its budget the orbit is reported without the constant
+            system = hamiltonian_system(spec, values, source=document.source)
+        except InputError:
+            system = None
+        if system is not None:
+            separation = probe_separable.report(system, plan.radial, plan.polar, x0, xs.T, momenta.T, 1.0)
         if separation is not None:
             drift["separation"] = separation[1]
     prov = provenance(document, context, exporter, chart)
