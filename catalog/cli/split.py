@@ -137,6 +137,8 @@ def split(
             raise InputError(str(output), None, f"unknown grid format '{output.suffix or '(none)'}' "
                                                 f"(use {', '.join(SUFFIXES)})")
     found = open_subject(app_ctx, subject, chart=chart)
+    if not found.is_file:
+        app_ctx.engine.dispose()  # no pooled connection is inherited by the charts' forked children
     doc = found.document
     names = [found.chart] if found.chart else list(doc.chart_names)
     texts = [t for t in settings or [] if t.strip()]
@@ -262,10 +264,18 @@ def _write_grid(found, doc, name, texts, time, budget, grid, output, as_json) ->
     revision = found.revision_hash or doc.hash
     source = str(found.ref.path) if found.is_file else f"catalogue entry {found.ref.entry}, revision " \
                                                           f"{found.revision_number}"
+    if found.is_file:
+        stored = "a metric file (no stored checks)"
+    elif not found.checks:
+        stored = "unverified (no checks stored for this revision)"
+    else:
+        from gravicat.checks import worst
+
+        stored = worst(c["status"] for c in found.checks).value
 
     def work(emit):
         return _grid_work(doc, spec, name=name, time=time, budget=budget, grid=grid, output=output, values=values,
-                          time_text=time_text, revision=revision, source=source)
+                          time_text=time_text, revision=revision, source=source, stored=stored)
 
     outcome = _run([work], budget)[0]
     if not outcome.finished:
@@ -281,7 +291,8 @@ def _write_grid(found, doc, name, texts, time, budget, grid, output, as_json) ->
                    f"momentum {summary['constraints']['momentum']}")
 
 
-def _grid_work(doc, spec, *, name, time, budget, grid, output, values, time_text, revision, source) -> dict:
+def _grid_work(doc, spec, *, name, time, budget, grid, output, values, time_text, revision, source,
+               stored) -> dict:
     import sympy as sp
 
     from gravicat import __version__
@@ -310,6 +321,7 @@ def _grid_work(doc, spec, *, name, time, budget, grid, output, values, time_text
     arrays = evaluate(fields, list(sl.coords), axes, subs, domain=domain)
     attributes = {
         "entry": doc.id, "title": doc.title, "revision": revision, "source": source, "chart": name,
+        "stored_checks": stored,
         "time_coordinate": str(tsym), "time_value": float(tval), "coordinates": coords,
         "parameters": {k: float(v) for k, v in values.items()},
         "generator": f"gravicat {__version__}", "convention": CONVENTION,
