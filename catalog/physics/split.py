@@ -336,6 +336,10 @@ def split_chart(spec, *, time: str | None = None, budget: float = 20.0, source: 
         domain=spec.domain,
         param_ranges=spec.param_ranges,
         defaults=dict(spec.defaults),
+        # the printable values, so that a Geometry of the three-chart (the path of data given on a slice)
+        # can convert them; the split's own proofs work on ``geometry`` and never build it
+        extra={"_exprs": [e for row in k for e in row] + [trace_k, *shift]
+               + ([rho8, *momentum8] if rho8 is not None else []) + ([lam] if lam is not None else [])},
     )
     return Slice(spec=spec, time=t, spatial=spatial, lapse=lapse, lapse_squared=lapse_sq, shift=shift,
                  shift_lower=[spec.metric[t, i] for i in spatial],
