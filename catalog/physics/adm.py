@@ -107,9 +107,77 @@ def _numeric(X, subs, exprs):
     return lambda *xyz: raw(*xyz, *values)
 
 
+def _spherical(sl) -> bool:
+    names = [str(c) for c in sl.coords]
+    return len(names) == 3 and names[0] in _RADIAL and names[1] == "theta" and names[2] == "phi"
+
+
+class _SphericalFields:
+    """The Cartesian components of gamma_ij, d_k gamma_ij and K_ij, and K, of a slice in spherical
+    coordinates, assembled numerically: the chart's own components (and d_c gamma_ab) are evaluated at
+    ``(r, theta, phi)`` of each point and combined with the Jacobian ``J_ai = d q_a / d x_i`` and its
+    derivatives (closed forms of the flat map), ``gamma_ij = J_ai J_bj gamma_ab`` and
+    ``d_k gamma_ij = d_k J_ai J_bj gamma_ab + J_ai d_k J_bj gamma_ab + J_ai J_bj J_ck d_c gamma_ab``.
+    The same numbers as the symbolic substitution, without printing large Cartesian expressions."""
+
+    def __init__(self, sl, subs):
+        import sympy as sp
+
+        q = list(sl.coords)
+        gamma, K = sp.Matrix(sl.spatial_metric), sp.Matrix(sl.extrinsic)
+        comps = [(a, b) for a in range(3) for b in range(3)]
+        self._g = _numeric(q, subs, [gamma[a, b] for a, b in comps])
+        self._dg = _numeric(q, subs, [sp.diff(gamma[a, b], c) for c in q for a, b in comps])
+        self._k = _numeric(q, subs, [K[a, b] for a, b in comps] + [sp.sympify(sl.trace_k)])
+        x, y, z = X = sp.symbols("x y z", real=True)
+        r = sp.sqrt(x**2 + y**2 + z**2)
+        qx = [r, sp.acos(z / r), sp.atan2(y, x)]
+        J = [[sp.diff(qx[a], X[i]) for i in range(3)] for a in range(3)]
+        self._J = sp.lambdify(X, J, "numpy", cse=True, docstring_limit=0)
+        self._dJ = sp.lambdify(X, [[[sp.diff(J[a][i], X[k]) for i in range(3)] for a in range(3)] for k in range(3)],
+                               "numpy", cse=True, docstring_limit=0)
+
+    @staticmethod
+    def _arr(vals, shape, dims):
+        import numpy as np
+
+        return np.array([np.broadcast_to(np.asarray(v, dtype=float), shape) for v in vals]).reshape(*dims, *shape)
+
+    def at(self, X, Y, Z):
+        """(gamma (3, 3, ...), d gamma (3, 3, 3, ...) with the derivative index first, K (3, 3, ...), trace K)."""
+        import numpy as np
+
+        shape = np.shape(X)
+        R = np.sqrt(X**2 + Y**2 + Z**2)
+        q = (R, np.arccos(Z / R), np.arctan2(Y, X))
+        J = self._arr([v for row in self._J(X, Y, Z) for v in row], shape, (3, 3))
+        dJ = self._arr([v for m in self._dJ(X, Y, Z) for row in m for v in row], shape, (3, 3, 3))
+        g = self._arr(self._g(*q), shape, (3, 3))
+        dgq = self._arr(self._dg(*q), shape, (3, 3, 3))  # d_c gamma_ab
+        kv = self._k(*q)
+        Kq = self._arr(kv[:9], shape, (3, 3))
+        trace = np.broadcast_to(np.asarray(kv[9], dtype=float), shape)
+        gc = np.einsum("ai...,bj...,ab...->ij...", J, J, g)
+        dgc = (np.einsum("kai...,bj...,ab...->kij...", dJ, J, g) + np.einsum("ai...,kbj...,ab...->kij...", J, dJ, g)
+               + np.einsum("ai...,bj...,ck...,cab...->kij...", J, J, J, dgq))
+        return gc, dgc, np.einsum("ai...,bj...,ab...->ij...", J, J, Kq), trace
+
+
 def _mass_integrand(sl, subs):
     import sympy as sp
 
+    if _spherical(sl):
+        fields = _SphericalFields(sl, subs)
+
+        def flux(X, Y, Z):
+            _g, dg, _k, _t = fields.at(X, Y, Z)
+            return [sum(dg[j, i, j] - dg[i, j, j] for j in range(3)) for i in range(3)]
+
+        def deviation(X, Y, Z):
+            g = fields.at(X, Y, Z)[0]
+            return [g[i, j] - (1 if i == j else 0) for i in range(3) for j in range(3)]
+
+        return flux, deviation
     (gamma,), X, _ = _cartesian(sl, [sl.spatial_metric])
     flux = [sum(sp.diff(gamma[i, j], X[j]) - sp.diff(gamma[j, j], X[i]) for j in range(3)) for i in range(3)]
     deviation = [gamma[i, j] - (1 if i == j else 0) for i in range(3) for j in range(3)]
@@ -119,8 +187,21 @@ def _mass_integrand(sl, subs):
 def _spin_integrand(sl, subs):
     import sympy as sp
 
+    if _spherical(sl):
+        fields = _SphericalFields(sl, subs)
+
+        def momentum(X, Y, Z):
+            g, _dg, K, trace = fields.at(X, Y, Z)
+            phi = [-Y, X, 0 * X]
+            return [sum((K[i, j] - trace * g[i, j]) * phi[i] for i in range(3)) for j in range(3)]
+
+        def kcart(X, Y, Z):
+            K = fields.at(X, Y, Z)[2]
+            return [K[i, j] for i in range(3) for j in range(3)]
+
+        return momentum, kcart
     (gamma, K), X, sub = _cartesian(sl, [sl.spatial_metric, sl.extrinsic])
-    trace = sp.sympify(sl.trace_k).subs(sub, simultaneous=True) if sub else sp.sympify(sl.trace_k)
+    trace = sp.sympify(sl.trace_k)
     x, y, _z = X
     phi = [-y, x, 0]
     P = [sum((K[i, j] - trace * gamma[i, j]) * phi[i] for i in range(3)) for j in range(3)]  # P_j phi^i
