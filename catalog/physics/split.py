@@ -169,7 +169,7 @@ def _sym(geo, v):
     return _cancel_roots(sp.sympify(geo.to_sympy(v)))
 
 
-_CANCEL_LIMIT = 400  # operations: larger expressions are printed as the engine gives them
+_CANCEL_LIMIT = 1000  # tree nodes: larger expressions are printed as the engine gives them
 
 
 def _cancel_roots(e):
@@ -181,14 +181,15 @@ def _cancel_roots(e):
     slices are regular. For each ``sqrt(P)`` with ``P`` a polynomial, numerator and denominator are
     rewritten with ``s = sqrt(P)`` and reduced modulo ``P - s^2`` (lex order), then cancelled; the
     result is kept only when the denominator lost degree (something really cancelled). Expressions
-    of more than :data:`_CANCEL_LIMIT` operations are left as they are."""
+    of more than :data:`_CANCEL_LIMIT` tree nodes, or with nested roots, are left as they are."""
     import sympy as sp
 
-    try:
-        if sp.count_ops(e) > _CANCEL_LIMIT:
+    for i, _node in enumerate(sp.preorder_traversal(e)):  # stop counting early: big values are common
+        if i > _CANCEL_LIMIT:
             return e
-    except (TypeError, ValueError):  # pragma: no cover - an object count_ops does not know
-        return e
+    roots = [p for p in e.atoms(sp.Pow) if not p.exp.is_Integer]
+    if any(q is not p and p.base.has(q) for p in roots for q in roots):
+        return e  # nested roots (Kerr-Schild's radius): the reduction below would be slow and rarely helps
     for p in sorted(e.atoms(sp.Pow), key=sp.default_sort_key):
         if p.exp != sp.S.Half or not p.base.is_polynomial() or not p.base.free_symbols:
             continue
