@@ -189,3 +189,19 @@ def test_batched_computation_retries_a_stopped_batch_one_entry_per_child(monkeyp
     values, stopped = build.compute_all(sources, {}, jobs=1, cpu_seconds=1.0)
     assert sorted(values) == [0, 2, 3, 4, 5, 6, 7, 8] and all(values[i]["slug"] == f"e{i}" for i in values)
     assert list(stopped) == [1] and stopped[1].limit == "cpu"
+
+
+def test_downloads_of_every_target_get_their_own_file():
+    """Targets that share a suffix (c and geodesic-c: .h; python and geodesic-numpy: .py) never overwrite
+    each other's download: one file per link, each made with the frozen ExportContext exporters expect."""
+    from gravicat.api.site.parts import downloads
+    from gravicat.format.bundled import read_bundled
+
+    doc = read_bundled(bundled_path("minkowski"))
+    checks = [{"check": "field-equations", "status": "pass", "chart": c, "seconds": 0.0} for c in doc.chart_names]
+    made = downloads(doc, exporters=exporters(make_plugin_manager()), revision=doc.hash, checks=checks,
+                     date="2026-12-05", source="site test")
+    names = [fname for _, _, fname in made["links"]]
+    assert len(names) == len(set(names)) == len(made["files"]) and set(names) == set(made["files"])
+    assert {name for name, _, _ in made["links"]} | {name for name, _ in made["problems"]} >= {"c", "geodesic-c",
+                                                                                              "python", "latex"}

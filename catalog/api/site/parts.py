@@ -235,6 +235,8 @@ def downloads(doc, *, exporters: dict[str, Any], revision: str, checks: list[dic
     """Files made by every registered exporter for every chart of a verified revision (one file per
     exporter when every chart gives the same bytes). Returns ``{"files": {name: bytes},
     "links": [(exporter, chart or None, name)], "problems": [(exporter, reason)]}``."""
+    from gravicat.checks import ExportContext
+
     files: dict[str, bytes] = {}
     links: list[tuple[str, str | None, str]] = []
     problems: list[tuple[str, str]] = []
@@ -244,8 +246,8 @@ def downloads(doc, *, exporters: dict[str, Any], revision: str, checks: list[dic
         made: dict[str, bytes] = {}
         failed = None
         for chart in doc.chart_names:
-            context = {"revision": revision, "checks": checks, "chart": chart, "params": None,
-                       "allow_unverified": False, "date": date, "source": source}
+            context = ExportContext(revision=revision, checks=tuple(checks), chart=chart, params=None,
+                                    allow_unverified=False, date=date, source=source)
             try:
                 made[chart] = exp.export(doc, context).encode("utf-8")
             except CatalogError as exc:
@@ -258,8 +260,8 @@ def downloads(doc, *, exporters: dict[str, Any], revision: str, checks: list[dic
             files[fname] = next(iter(made.values()))
             links.append((name, None, fname))
             continue
-        for chart, data in made.items():
-            fname = f"{slug}.{chart}{suffix}"
+        for chart, data in made.items():  # the target's name too: several targets share a suffix (.h, .py)
+            fname = f"{slug}.{chart}.{name}{suffix}" if suffix != f".{name}" else f"{slug}.{chart}{suffix}"
             files[fname] = data
             links.append((name, chart, fname))
     return {"files": files, "links": links, "problems": problems}
