@@ -146,12 +146,15 @@ def _petrov(geo, spec, doc, budget, fixed) -> dict:
 
 def _specialisations(spec, doc, budget, fixed) -> list[dict]:
     """The Petrov type where one parameter is zero (each parameter whose assumptions and range allow 0)."""
+    import time
+
     from gravicat.engine.geometry import Geometry
     from gravicat.errors import InputError
     from gravicat.export.parameters import check_parameter_values
     from gravicat.physics.petrov import petrov_type
 
     out = []
+    end = time.process_time() + budget  # all the specialisations together get one budget
     for p in spec.params:
         values = {str(k): v for k, v in fixed.items()} | {str(p): 0}
         try:
@@ -159,8 +162,13 @@ def _specialisations(spec, doc, budget, fixed) -> list[dict]:
             zero = specialise(spec, {p: 0})
         except InputError:
             continue
+        left = end - time.process_time()
+        if left <= 0.5:
+            out.append({"where": f"{p} = 0", "type": None, "method": "none",
+                        "detail": f"not computed: the specialisations' budget of {budget:g} s was spent"})
+            continue
         try:
-            res = petrov_type(Geometry(zero, budget=budget), budget=budget)
+            res = petrov_type(Geometry(zero, budget=left), budget=left)
         except (ZeroDivisionError, ValueError):
             continue
         out.append({"where": f"{p} = 0", "type": res.type, "method": res.method, "detail": res.where})
