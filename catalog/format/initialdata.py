@@ -79,11 +79,11 @@ def _matrix(v, rows, names, field: str) -> list[list[str]]:
     return [[v.expr(x, names, f"{field}[{i}][{j}]") for j, x in enumerate(row)] for i, row in enumerate(rows)]
 
 
-def _check_size(v, base: str, defines: dict, fields: dict[str, str]) -> None:
+def _check_size(v, base: str, coords: list[str], defines: dict, fields: dict[str, str]) -> None:
     """The size limits of :mod:`gravicat.format.size` for definitions and every other expression."""
     from gravicat.format.size import MAX_DEGREE, MAX_TERMS, _shown, chart_sizes, check_chart_size
 
-    check_chart_size(v.source, base, {"coordinates": [0, 0, 0], "define": defines})
+    check_chart_size(v.source, base, {"coordinates": coords, "define": defines})
     for field, text in fields.items():
         size = chart_sizes({"define": defines, "line-element": text})["line-element"]
         if size.worst_degree > MAX_DEGREE:
@@ -97,7 +97,7 @@ def _check_size(v, base: str, defines: dict, fields: dict[str, str]) -> None:
 def validate_chart(v, cname: str, craw: dict, taken: dict[str, str], param_names, coords: list[str],
                    claim: str) -> dict[str, Any]:
     """The canonical form of one initial-data chart (``v`` is the validator of metricfile)."""
-    from gravicat.format.expr import Names, canonical, check_expression_size, check_relation
+    from gravicat.format.expr import Names, canonical, check_expression_size
     from gravicat.format.metricfile import _kind, _substitutions
 
     base = f"charts.{cname}"
@@ -121,7 +121,6 @@ def validate_chart(v, cname: str, craw: dict, taken: dict[str, str], param_names
     domain = []
     for i, t in enumerate(v.str_list(craw.get("domain", []), f"{base}.domain")):
         domain.append(v.relation(t, names, f"{base}.domain[{i}]"))
-        check_relation(t, names, source=v.source, field=f"{base}.domain[{i}]")
     chart: dict[str, Any] = {"coordinates": coords, "domain": domain, "functions": [], "define": defines}
     sized: dict[str, str] = {}
     has_m, has_psi = "spatial-metric" in craw, "conformal-factor" in craw
@@ -179,7 +178,7 @@ def validate_chart(v, cname: str, craw: dict, taken: dict[str, str], param_names
         v.fail(f"{base}.cosmological-constant", f"only with field-equations = \"lambda-vacuum\" (this file "
                                                 f"claims {claim})")
     chart.update({"observers": {}, "transforms": {}, "invariants": {}})  # the keys every chart has
-    _check_size(v, base, defines, sized)
+    _check_size(v, base, coords, defines, sized)
     return chart
 
 
