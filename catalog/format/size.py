@@ -30,7 +30,7 @@ from gravicat.errors import InputError
 
 MAX_COORDINATES = 11
 MAX_DEGREE = 400
-MAX_TERMS = 20_000
+MAX_TERMS = 100_000
 
 _HUGE = 1e300
 
