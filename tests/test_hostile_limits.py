@@ -225,3 +225,56 @@ def test_invariants_still_print_the_closed_forms(tmp_path):
     assert done.exit_code == 0, done.output
     (chart,) = json.loads(done.stdout)["charts"]
     assert chart["ricci_scalar"] == "0" and chart["kretschmann"] == "0"
+
+
+# --------------------------------------------------------------------------- export and probe under the caps
+
+
+@pytest.mark.parametrize("target", ["python", "c", "geodesic-numpy", "initial-data-numpy"])
+def test_export_of_a_slow_file_ends_with_one_line(target, tmp_path):
+    """Exporters work on file content in a child under the CPU-time and memory caps (issue 14 item 3):
+    slow-but-small passes the parse-time limits and would take minutes to differentiate."""
+    out = tmp_path / "out.txt"
+    out.write_text("kept\n")
+    start = time.monotonic()
+    done = gravicat(tmp_path, "export", str(SLOW), "--to", target, "--allow-unverified", "--budget", "2",
+                    "-o", str(out))
+    assert time.monotonic() - start < 120  # 2 CPU s plus start-up, on a loaded machine
+    assert done.returncode == 1
+    assert one_line(done.stderr) == (f"Error: hostile-slow-but-small: export --to {target} stopped (CPU-time cap "
+                                     "of 2 s reached); nothing written; give a larger --budget, or setting "
+                                     "memory-cap for memory (see docs/limits.md)")
+    assert out.read_text() == "kept\n"  # the earlier file is untouched
+
+
+def test_export_under_a_tiny_memory_cap(tmp_path):
+    done = gravicat(tmp_path, "export", str(SLOW), "--to", "python", "--allow-unverified", cap="64MiB")
+    assert done.returncode == 1 and done.stdout == ""
+    assert "memory cap (64 MiB) reached" in one_line(done.stderr)
+
+
+def test_probe_of_a_slow_file_ends_with_one_line(tmp_path):
+    start = time.monotonic()
+    done = gravicat(tmp_path, "probe", str(SLOW), "--orbit", "radial", "--from", "t=0,x=0.1,y=0.1,z=0.1",
+                    "--budget", "1", "--max-cpu", "1")
+    assert time.monotonic() - start < 120
+    assert done.returncode == 1 and done.stdout == ""
+    assert one_line(done.stderr) == ("Error: hostile-slow-but-small: probe stopped (CPU-time cap of 2 s reached); "
+                                     "nothing written; give a larger --budget, or setting memory-cap for memory "
+                                     "(see docs/limits.md)")
+
+
+def test_export_and_probe_still_work_in_their_child(tmp_path):
+    """The child's result reaches the parent whole: the Schwarzschild export defines the metric, and the
+    probe's circular orbit at r = 10 M has Omega = sqrt(M / r^3) (Schwarzschild's Kepler law; recalled
+    from memory: Misner, Thorne & Wheeler, Gravitation, 1973, section 25.5)."""
+    from gravicat.format.bundled import bundled_path
+
+    path = bundled_path("schwarzschild")
+    done = gravicat(tmp_path, "export", str(path), "--to", "python", "--allow-unverified")
+    assert done.returncode == 0, done.stderr
+    assert "def metric(" in done.stdout
+    done = gravicat(tmp_path, "probe", str(path), "--from", "r=10,theta=pi/2", "--set", "M=1", "--json",
+                    "--orbits", "1")
+    assert done.returncode == 0, done.stderr
+    assert abs(json.loads(done.stdout)["circular"]["Omega"] - 10 ** -1.5) < 1e-12

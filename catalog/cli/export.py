@@ -70,8 +70,9 @@ def export(
                                                    "failed or were never run (the header says so).")] = False,
     christoffel: Annotated[bool, typer.Option("--christoffel", help="latex: also the nonzero Christoffel "
                                                                     "symbols.")] = False,
-    budget: Annotated[float, typer.Option("--budget", min=0.1, help="latex --christoffel: seconds for the "
-                                                                   "symbolic computation.")] = 60.0,
+    budget: Annotated[float, typer.Option("--budget", min=0.1, help="CPU seconds for the export's symbolic "
+                                                                   "work (derivatives, Christoffel symbols).")]
+    = 60.0,
     list_targets: Annotated[bool, typer.Option("--list", help="List export targets and exit.")] = False,
 ) -> None:
     """Export an entry or a metric file (default target: the canonical JSON form with its stored checks)."""
@@ -105,7 +106,14 @@ def export(
         source = f"catalogue entry {found.ref.entry}, revision {found.revision_number}"
     context = ExportContext(revision=revision, checks=tuple(checks), source=source, chart=chart, params=params,
                             allow_unverified=allow_unverified, christoffel=christoffel, budget=budget)
-    text = targets[to].export(doc, context)
+    from gravicat.engine.fork import run_bounded
+
+    exporter = targets[to]
+    # the exporter works on file content: in a child under the CPU-time cap and the memory cap
+    # (the Christoffel symbols of latex get ``budget`` of their own, in a grandchild)
+    text = run_bounded(lambda: exporter.export(doc, context), cpu_seconds=budget,
+                       what=f"{doc.id}: export --to {to}",
+                       hint="give a larger --budget, or setting memory-cap for memory (see docs/limits.md)")
     if output is None:
         typer.echo(text, nl=False)
         return

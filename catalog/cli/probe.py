@@ -78,6 +78,9 @@ def probe(
                                                                "(exit 1: unfinished).")] = 200_000,
     max_cpu: Annotated[float, typer.Option("--max-cpu", help="Stop after this many CPU seconds (exit 1: "
                                                              "unfinished).")] = 60.0,
+    budget: Annotated[float, typer.Option("--budget", min=0.1, help="CPU seconds to prepare the chart's code "
+                                                                   "(its derivatives), besides --max-cpu.")]
+    = 60.0,
     max_drift: Annotated[float | None, typer.Option("--max-drift", help="Exit 1 if the normalisation or a "
                                                                         "conserved momentum drifts more.")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON (documented shape).")] = False,
@@ -94,12 +97,19 @@ def probe(
     if exporter is None:
         raise NotFound("the probe runs the code of the 'python' export target, which is not loaded "
                        "(see 'gravicat plugins')")
-    report = run_probe(doc, exporter, chart=chart, params=params, start=start, orbit=orbit, direction=direction,
-                       velocity=velocity, azimuth=azimuth, tau=tau, orbits=orbits, rtol=rtol, atol=atol,
-                       max_steps=max_steps, max_cpu=max_cpu, context=context, impact=impact,
-                       theta_impact=theta_impact, outgoing=outgoing, charge=charge, stop_radius=stop_radius,
-                       escape_radius=escape_radius, stop_below=stop_below or (), stop_above=stop_above or (),
-                       cross_horizons=cross_horizons)
+    from gravicat.engine.fork import run_bounded
+
+    # the whole probe (preparing the code from file content, then integrating) in a child under the caps
+    def work():
+        return run_probe(doc, exporter, chart=chart, params=params, start=start, orbit=orbit, direction=direction,
+                         velocity=velocity, azimuth=azimuth, tau=tau, orbits=orbits, rtol=rtol, atol=atol,
+                         max_steps=max_steps, max_cpu=max_cpu, context=context, impact=impact,
+                         theta_impact=theta_impact, outgoing=outgoing, charge=charge, stop_radius=stop_radius,
+                         escape_radius=escape_radius, stop_below=stop_below or (), stop_above=stop_above or (),
+                         cross_horizons=cross_horizons)
+
+    report = run_bounded(work, cpu_seconds=budget + max_cpu, what=f"{doc.id}: probe",
+                         hint="give a larger --budget, or setting memory-cap for memory (see docs/limits.md)")
     problems = _problems(report, max_drift)
     if as_json:
         emit_json(report)

@@ -152,6 +152,32 @@ def run_forked(fn: Task, *, cpu_seconds: float | None = None, wall_seconds: floa
                     in_process=in_process)[0]
 
 
+def run_bounded(fn: Callable[[], Any], *, cpu_seconds: float, what: str, hint: str = "") -> Any:
+    """``fn()`` in a forked child under a CPU-time cap of ``cpu_seconds`` (wall backstop ``2 * cpu + 10``)
+    and the memory cap: its value, or its own exception raised again here (a
+    :class:`gravicat.errors.CatalogError` keeps its one-line message), or, when a cap was reached, the
+    one-line :class:`gravicat.errors.CheckFailed` (exit 1, as ``invariants`` past its budget)
+    ``"<what> stopped (<limit>); nothing written; <hint>"``. For the commands that work on file
+    content outside the per-chart children of ``check`` (export, probe): never a hang, never an
+    out-of-memory kill."""
+    from gravicat.errors import CatalogError, CheckFailed
+
+    wall = 2 * cpu_seconds + 10
+    out = run_forked(lambda emit: fn(), cpu_seconds=cpu_seconds, wall_seconds=wall)
+    if out.finished:
+        return out.value
+    if out.limit is not None:
+        tail = f"; {hint}" if hint else ""
+        raise CheckFailed(f"{what} stopped ({describe_limit(out, cpu_seconds, wall)}); nothing written{tail}")
+    if isinstance(out.exception, CatalogError):
+        raise out.exception
+    if out.exception is not None:
+        out.reraise()
+    if out.died:
+        raise CatalogError(f"{what} stopped unexpectedly (exit code {out.exitcode})")
+    raise CatalogError(f"{what} failed: {out.error}")
+
+
 def run_many(tasks: Sequence[Task], *, jobs: int = 1, cpu_seconds: Sequence[float | None] | float | None = None,
              wall_seconds: Sequence[float | None] | float | None = None, in_process: bool = False,
              on_item: Callable[[int, Any], None] | None = None) -> list[Outcome]:
