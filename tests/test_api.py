@@ -45,7 +45,8 @@ def cat(tmp_path_factory):
 def bundled_ids() -> list[str]:
     import tomllib
 
-    return sorted(tomllib.loads(p.read_text())["id"] for p in BUNDLED.glob("*.toml"))
+    files = [*BUNDLED.glob("*.toml"), *(BUNDLED.parent / "initial-data").glob("*.toml")]  # as init loads them
+    return sorted(tomllib.loads(p.read_text())["id"] for p in files)
 
 
 # --------------------------------------------------------------------------- the surface

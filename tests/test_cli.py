@@ -182,14 +182,18 @@ def test_help_for_every_command(cli):
 
 
 def test_init_loads_bundled_catalogue_idempotently(cli):
-    from gravicat.store.revisions import bundled_files
+    from gravicat.store.revisions import bundled_files, initial_data_files
 
+    count = len(bundled_files()) + len(initial_data_files())  # the spacetimes and the initial data
+    assert len(initial_data_files()) >= 2
     first = cli("init", "--no-verify")
     assert first.exit_code == 0, first.output
-    assert f"{len(bundled_files())} new" in first.stdout
+    assert f"{count} new" in first.stdout
     assert "not verified yet: run 'gravicat verify --all'" in first.stdout
     second = cli("init", "--no-verify")
-    assert second.exit_code == 0 and f"{len(bundled_files())} unchanged" in second.stdout
+    assert second.exit_code == 0 and f"{count} unchanged" in second.stdout
+    listed = cli("list", "--json")
+    assert {"brill-lindquist"} <= {e["id"] for e in json.loads(listed.stdout)}
 
 
 def test_init_verifies_what_it_loads_once(cli, monkeypatch):
@@ -199,7 +203,7 @@ def test_init_verifies_what_it_loads_once(cli, monkeypatch):
     from gravicat.store import revisions as store
 
     small = [f for f in store.bundled_files() if f.name in ("minkowski.toml", "schwarzschild.toml")]
-    monkeypatch.setattr(store, "iter_bundled_documents", lambda: iter([load_file(f) for f in small]))
+    monkeypatch.setattr(store, "iter_all_bundled_documents", lambda: iter([load_file(f) for f in small]))
     first = cli("init", "--jobs", "2")
     assert first.exit_code == 0, first.output
     assert "verified the bundled entries: 2 of 2 pass" in first.stdout

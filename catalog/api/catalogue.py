@@ -200,7 +200,7 @@ class Catalogue:
         from gravicat import __version__
         from gravicat.store import revisions as store
 
-        docs = list(store.iter_bundled_documents()) if bundled else []
+        docs = list(store.iter_all_bundled_documents()) if bundled else []
         counts = {"new": 0, "revised": 0, "unchanged": 0}
         with self.session(create=True) as s:
             for doc in docs:

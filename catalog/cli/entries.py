@@ -57,7 +57,7 @@ def init(ctx: typer.Context,
         typer.echo("the bundled entries are not verified yet: run 'gravicat verify --all' before exporting "
                    "(or export with --allow-unverified)")
         return
-    _verify_bundled(app_ctx, [d.id for d in store.iter_bundled_documents()], jobs)
+    _verify_bundled(app_ctx, [d.id for d in store.iter_all_bundled_documents()], jobs)
 
 
 def _verify_bundled(app_ctx, slugs: list[str], jobs: int | None) -> None:

@@ -12,7 +12,12 @@ from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
 from gravicat.errors import Conflict, InputError, NotFound
-from gravicat.format.bundled import bundled_files, iter_bundled_documents  # noqa: F401  (the one reader)
+from gravicat.format.bundled import (  # noqa: F401  (the one reader)
+    bundled_files,
+    initial_data_files,
+    iter_all_bundled_documents,
+    iter_bundled_documents,
+)
 from gravicat.format.metricfile import MetricDocument
 from gravicat.store.models import Chart, CheckRecord, Entry, Parameter, Provenance, Reference, Revision, Tag
 
