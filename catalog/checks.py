@@ -174,7 +174,9 @@ class PreparedChart(Protocol):
 @runtime_checkable
 class Verifier(Protocol):
     """A check of prepared charts: ``name`` and ``version`` (bump it when the logic changes: stored
-    results of another version are stale); optional ``screens_repairs`` (bool, default False)."""
+    results of another version are stale); optional ``screens_repairs`` (bool, default False) and
+    ``kinds`` (the kinds of entry it checks, default ``("spacetime",)``; ``"initial-data"`` for
+    3-geometries; charts of another kind get a ``skipped`` result without a call)."""
 
     name: str
     version: str

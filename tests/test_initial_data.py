@@ -243,6 +243,15 @@ def test_limits_belong_to_spacetimes_only(cli, tmp_path):
     assert r.exit_code == 2 and "limits" in _one_line(r)
 
 
+@pytest.mark.parametrize("args", [["classify"], ["orbits"], ["image", "--observer", "r=10", "-o", "x.png"],
+                                  ["probe", "--from", "x=1,y=1,z=1"]])
+def test_spacetime_commands_refuse_initial_data(cli, args):
+    """A 3-geometry has no Petrov type, orbits or light rays: one line naming the field kind (exit 2)."""
+    r = cli(args[0], str(BL), *args[1:])
+    line = _one_line(r)
+    assert r.exit_code == 2 and ": kind: brill-lindquist is initial data" in line and "gravicat split" in line
+
+
 # --------------------------------------------------------------------------- exporters
 
 

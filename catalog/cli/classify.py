@@ -39,6 +39,9 @@ def classify(
     app_ctx = app_context(ctx)
     found = open_subject(app_ctx, subject)
     doc = found.document
+    from gravicat.format.charts import require_spacetime
+
+    require_spacetime(doc, "classify")
     names = subject_charts(subject, found.chart, chart) or doc.chart_names
     for name in names:
         if name not in doc.chart_names:

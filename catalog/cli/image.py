@@ -101,6 +101,9 @@ def image(
     app_ctx = app_context(ctx)
     found = open_subject(app_ctx, subject, chart=chart)
     doc, chart = found.document, found.chart or doc_first_chart(found.document)
+    from gravicat.format.charts import require_spacetime
+
+    require_spacetime(doc, "image")
     spec = build_chart(doc, chart)
     params = lib.resolve_parameters(doc, spec, settings or ())
     model_chart = lib.EquatorialChart(spec, doc.chart_names)

@@ -72,6 +72,9 @@ def orbits(
     app_ctx = app_context(ctx)
     found = open_subject(app_ctx, subject, chart=chart)
     doc, chart = found.document, found.chart
+    from gravicat.format.charts import require_spacetime
+
+    require_spacetime(doc, "orbits")
     spec = build_chart(doc, chart)
     system = units.value
     params = lib.resolve_parameters(doc, spec, settings or (), units=system)

@@ -248,11 +248,9 @@ def _unreported(verifiers: list[Any], reported: set[int], cap: float, out) -> li
 
 
 def _memory_text() -> str:
-    from gravicat.engine.fork import MEMORY_CAP_BYTES
+    from gravicat.engine.fork import memory_cap_text
 
-    if not MEMORY_CAP_BYTES:
-        return "unlimited"
-    return f"{MEMORY_CAP_BYTES / 1024**2:g} MiB"
+    return memory_cap_text()  # the one wording of the cap ("3 GiB", "512 MiB", "no cap")
 
 
 class BundledDocuments(Mapping[str, MetricDocument]):

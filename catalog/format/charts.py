@@ -44,6 +44,16 @@ class ChartScope:
     names: Names
 
 
+def require_spacetime(doc: MetricDocument, what: str = "") -> None:
+    """A one-line InputError (field ``kind``) when ``doc`` is initial data, for the commands that need a
+    spacetime metric (``what`` names the command: ``"classify"``)."""
+    if doc.data.get("kind") == "initial-data":  # no spacetime metric to read (format/initialdata.py)
+        needs = f"{what} needs" if what else "this needs"
+        raise InputError(doc.source, "kind", f"{doc.id} is initial data (a 3-geometry with extrinsic curvature), "
+                                             f"not a spacetime ({needs} a spacetime metric): use 'gravicat split', "
+                                             "'gravicat check' and the initial-data exporters")
+
+
 def chart_scope(doc: MetricDocument, chart: str | None = None) -> ChartScope:
     """The names of ``chart`` (default: the first); NotFound for a chart the document lacks."""
     import sympy
@@ -51,9 +61,7 @@ def chart_scope(doc: MetricDocument, chart: str | None = None) -> ChartScope:
     from gravicat.format.metricfile import FUNCTION_DECL
 
     data = doc.data
-    if data.get("kind") == "initial-data":  # no spacetime metric to read (format/initialdata.py)
-        raise InputError(doc.source, "kind", f"{doc.id} is initial data (a 3-geometry with extrinsic curvature), "
-                                             "not a spacetime: use the initial-data exporters and checks")
+    require_spacetime(doc)
     chart = chart or next(iter(data["charts"]))
     if chart not in data["charts"]:
         from gravicat.errors import NotFound

@@ -102,16 +102,16 @@ def _depends(expr, coords) -> bool:
 
 def _limited(fn, seconds: float):
     """Run ``fn()`` in a forked child with a hard time limit: (value, None) or (None, reason)."""
-    from gravicat.engine.fork import run_forked
+    from gravicat.engine.fork import describe_limit, run_forked
 
     out = run_forked(lambda emit: fn(), wall_seconds=seconds)
     if out.finished:
         return out.value, None
     if out.error is not None:
         return None, out.error
-    if out.limit is not None:
+    if out.limit == "wall":
         return None, f"no result within {seconds:g} s"
-    return None, "the child process ended without a result"
+    return None, describe_limit(out, None, seconds)  # the memory cap, or how the child ended
 
 
 # --------------------------------------------------------------------------- one side

@@ -28,6 +28,7 @@ from importlib.resources import files
 from pathlib import Path
 from typing import Any
 
+from gravicat.engine.fork import describe_limit
 from gravicat.errors import InputError, NotFound
 
 SITE_FORMAT = "gravicat-site/1"
@@ -302,8 +303,7 @@ def build_site(entries: list[dict[str, Any]], out_dir: str | Path, *, exporters:
             computed = values[i] if sources[i] is e else _rebased(values[i], e, sources[i])
         else:
             oc = stopped[i]
-            why = (f"the computation reached its CPU-time cap of {cpu_seconds:g} s" if oc.limit == "cpu"
-                   else f"the computation stopped ({oc.limit or oc.error or 'the child ended'})")
+            why = f"the computation stopped ({describe_limit(oc, cpu_seconds)})"
             report.problems.append(f"{e['slug']}: {why}")
             computed = {"failure": why, "files": {},
                         "orbits": None if STATIONARY_TAGS & set(e["document"]["tags"]) else {"error": NOT_STATIONARY}}
