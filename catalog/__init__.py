@@ -19,6 +19,8 @@ from gravicat.checks import CheckResult, ExportContext, Method, PreparedChart, S
 from gravicat.errors import (
     CatalogError,
     CheckFailed,
+    ClusterError,
+    Conflict,
     DatabaseError,
     InputError,
     NotFound,
@@ -62,6 +64,8 @@ __all__ = [
     "CheckResults",
     "CheckFailed",
     "CheckResult",
+    "ClusterError",
+    "Conflict",
     "DatabaseError",
     "Entry",
     "ExportContext",
