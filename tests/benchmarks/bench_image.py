@@ -11,7 +11,12 @@ Not collected by pytest. Run by hand:
   same rays, one ray at a time, with the same right-hand side callables and the same stopping radii, its
   tolerance tightened until the sample's median drift is at or below gravicat's median drift on the same
   rays; seconds per ray and the ratio;
-* peak resident memory of the process (``resource.getrusage``).
+* peak resident memory of the process (``resource.getrusage``);
+* ``--outline``: the Kerr a = 0.9 shadow seen from r = 1000 M edge-on and at 60 degrees, traced at
+  ``--size`` pixels over a field of view of 0.024 rad, its edge against Bardeen's analytic curve
+  (J. M. Bardeen, in Black Holes, Les Houches 1973, the critical impact parameters xi, eta of the
+  spherical photon orbits): the largest distance in pixels (target: within one pixel at 256x256;
+  tests/test_image.py checks the same at 40x40).
 """
 
 from __future__ import annotations
@@ -37,7 +42,10 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--size", type=int, default=256)
     ap.add_argument("--sample", type=int, default=24)
+    ap.add_argument("--outline", action="store_true", help="the Kerr shadow outline against Bardeen's curve")
     args = ap.parse_args()
+    if args.outline:
+        return outline(args.size)
     doc = read_bundled(bundled_path("kerr"))
     spec = build_chart(doc, "boyer-lindquist")
     values = {"M": 1, "a": 0.9}
@@ -91,6 +99,41 @@ def main() -> None:
     print(f"ratio: gravicat is {base / (ours / n):.1f}x faster per ray")
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"peak resident memory: {peak:.0f} MiB")
+
+
+def outline(size: int) -> None:
+    from gravicat.export.hamiltonian import hamiltonian_system
+    from gravicat.format.bundled import bundled_path, read_bundled
+    from gravicat.format.metricfile import build_chart
+    from gravicat.physics.camera import build_camera, shadow_outline, trace_image
+    from gravicat.physics.equatorial import EquatorialChart
+    from gravicat.physics.geodesics import Stops
+
+    doc = read_bundled(bundled_path("kerr"))
+    spec = build_chart(doc, "boyer-lindquist")
+    M, a, r_obs = 1.0, 0.9, 1000.0
+    system = hamiltonian_system(spec, {"M": M, "a": a}, skip_domain=("theta",))
+    chart = EquatorialChart(spec, doc.chart_names)
+    rh = M + math.sqrt(M * M - a * a)
+    for name, inclination in (("edge-on", math.pi / 2), ("60 degrees", math.pi / 3)):
+        camera = build_camera(system, chart, {"r": r_obs, "theta": inclination})
+        cpu = time.process_time()
+        image = trace_image(system, camera, Stops(radial=1, inner=1.01 * rh, outer=2 * r_obs, polar=2), size=size,
+                            fov=0.024, max_steps=4000, max_cpu=3600)
+        seconds = time.process_time() - cpu
+        edge = np.array(shadow_outline(image))
+        r = np.linspace(1.0001, 4.9999, 20000)
+        xi = (r * r * (3 * M - r) - a * a * (r + M)) / (a * (r - M))
+        eta = r**3 * (4 * a * a * M - r * (r - 3 * M) ** 2) / (a * a * (r - M) ** 2)
+        c, s = math.cos(inclination), math.sin(inclination)
+        b2 = eta + a * a * c * c - xi * xi * c * c / (s * s)
+        keep = b2 >= 0
+        curve = np.vstack([np.column_stack([-xi[keep] / s, np.sqrt(b2[keep])]),
+                           np.column_stack([-xi[keep] / s, -np.sqrt(b2[keep])])]) / r_obs
+        dist = np.array([np.min(np.hypot(px - curve[:, 0], py - curve[:, 1])) for px, py in edge])
+        print(f"Kerr a = 0.9 shadow {name}, {size}x{size}, pixel {image.pixel:.2e} rad: {len(edge)} edge points, "
+              f"largest distance to Bardeen's curve {dist.max() / image.pixel:.2f} pixels, median "
+              f"{np.median(dist) / image.pixel:.2f}; {seconds:.1f} CPU s; drift max {image.rays.drift.max():.1e}")
 
 
 if __name__ == "__main__":
