@@ -29,7 +29,7 @@ if TYPE_CHECKING:
 
 class EnergyConditionsCheck:
     name = "energy-conditions"
-    version = "1"
+    version = "2"
 
     def check(self, geometry: PreparedChart) -> list[CheckResult]:
         from gravicat.plugins._common import result, skipped_if_degenerate

@@ -239,6 +239,36 @@ def test_alcubierre_negative_energy_density():
     assert bad.status == Status.FAIL and bad.counterexample["point"]
 
 
+@pytest.mark.parametrize("chart", ["original", "cylindrical"])
+def test_goedel_dust_conditions_proved_in_its_rotating_frame(chart):
+    """Goedel's dust, rho = 1/(8 pi a^2) > 0 and p = 0 with Lambda = -1/(2 a^2) on the geometric side
+    (K. Goedel, Rev. Mod. Phys. 21 (1949) 447): T^a_b is not diagonal in either chart (u is not a
+    coordinate direction of an orthogonal frame), so the proof goes through the declared fluid,
+    8 pi T_ab = (rho + p) u_a u_b + p g_ab checked identically; every condition holds
+    (Hawking & Ellis 1973, sec. 4.3)."""
+    from gravicat.physics.energy_proof import proved_energy_conditions
+
+    doc = _declare("godel", chart)
+    geo = Geometry(build_chart(doc, chart), budget=20)
+    out = proved_energy_conditions(geo, build_chart(doc, chart))
+    for cond in ("null", "weak", "strong", "dominant"):
+        assert out[cond]["status"] == "holds" and out[cond]["method"] == "proved", (cond, out[cond])
+        assert "declared fluid" in out[cond]["where"]
+    assert out["eigenvalues"]["pressures"] == {"fluid": "0"}
+
+
+def test_a_fluid_that_is_not_the_metric_source_is_not_used():
+    """A declared density twice the right one is not Goedel's stress tensor: the fluid shortcut refuses it
+    (the general analysis then answers from the Einstein tensor itself)."""
+    from gravicat.physics.energy_proof import _perfect_fluid
+
+    raw = copy.deepcopy(_raw("godel"))
+    raw["charts"]["original"]["fluid"]["density"] = "1/(4*pi*a**2)"
+    doc = validate(raw, "godel.toml")
+    spec = build_chart(doc, "original")
+    assert _perfect_fluid(Geometry(spec, budget=20), spec, True) is None
+
+
 @pytest.mark.parametrize("name", ["petrov", "killing", "energy-conditions"])
 def test_undeclared_charts_are_skipped(name):
     res = _run(name, _declare("minkowski", "cartesian"), "cartesian")

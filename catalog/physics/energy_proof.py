@@ -196,6 +196,8 @@ def _proved(geometry, spec, include_lambda):
         out["hawking_ellis_type"] = "I"
         out["eigenvalues"] = {"rho": "0", "pressures": {}, "timelike": None}
         return out
+    if spec.fluid is not None and (fluid := _perfect_fluid(geometry, spec, include_lambda)) is not None:
+        return fluid
     if not all(geometry.is_zero(M[a][b]) for a in range(n) for b in range(n) if a != b):
         return _null_dust(geometry, spec, M, include_lambda)
     blocks = _blocks(geometry)
@@ -252,6 +254,52 @@ def _proved(geometry, spec, include_lambda):
         "pressures": {label: _show(geometry, p8) for label, p8, _m, _b in Q.pressures},
         "timelike": ",".join(names[i] for i in blocks[lorentz]),
     }
+    return out
+
+
+def _perfect_fluid(geometry, spec, include_lambda):
+    """The conditions of a declared perfect fluid (or dust), when its stress tensor is exactly the
+    chart's: 8 pi T_ab = (rho8 + p8) u_a u_b + p8 g_ab with g(u, u) = -1, checked here identically
+    (whatever the coordinates: Goedel's rotating dust, Szekeres' dust). Then rho and the isotropic
+    pressure p are the eigenvalues (Hawking & Ellis 1973, sec. 4.3, type I) and the conditions read
+    rho + p >= 0 (null), rho >= 0 (weak), (n - 3) rho + (n - 1) p >= 0 (strong), rho >= |p|
+    (dominant). Returns the result only when every condition is proved to hold on the region (a
+    violation or an undecided sign goes on to the general analysis, which finds the point), else None."""
+    from gravicat.physics.claims import SpecMatter
+    from gravicat.physics.matter import stress_energy8
+    from gravicat.physics.positivity import region_relations, sign_on_region
+
+    n, g, z = geometry.n, geometry.g, geometry.is_zero
+    matter = SpecMatter(spec, geometry)
+    u = matter.velocity()
+    ul = [geometry._sum([g[a][b] * u[b] for b in range(n) if not z(g[a][b]) and not z(u[b])]) for a in range(n)]
+    norm = geometry._sum([ul[a] * u[a] for a in range(n) if not z(ul[a]) and not z(u[a])])
+    if not z(norm + 1):
+        return None
+    rho8, p8 = matter.rho8(), matter.p8()
+    T = stress_energy8(geometry, spec, include_lambda)
+    if not all(z(T[a][b] - (rho8 + p8) * ul[a] * ul[b] - p8 * g[a][b]) for a in range(n) for b in range(a, n)):
+        return None
+    quantities = {"rho": rho8, "rho + p": rho8 + p8, "rho - p": rho8 - p8,
+                  ("rho + 3 p" if n == 4 else f"({n - 3}) rho + ({n - 1}) p"): rho8 * (n - 3) + p8 * (n - 1)}
+    strong = next(k for k in quantities if k not in ("rho", "rho + p", "rho - p"))
+    uses = {"null": ["rho + p"], "weak": ["rho", "rho + p"], "strong": ["rho + p", strong],
+            "dominant": ["rho", "rho + p", "rho - p"]}
+    relations = region_relations(spec)
+    signs = {}
+    for key, v in quantities.items():
+        signs[key] = "zero" if z(v) else sign_on_region(geometry.to_sympy(v), geometry.coords, geometry.params,
+                                                         relations)
+        if signs[key] not in ("zero", "positive", "nonnegative"):
+            return None
+    out: dict[str, Any] = {
+        cond: {"status": "holds", "method": "proved", "counterexample": None,
+               "where": "proved on the domain and parameter ranges for the declared fluid: "
+                        + ", ".join(f"{k} >= 0" for k in keys)}
+        for cond, keys in uses.items()}
+    out["hawking_ellis_type"] = "I"
+    out["eigenvalues"] = {"rho": _show(geometry, rho8), "pressures": {"fluid": _show(geometry, p8)},
+                          "timelike": "the fluid's velocity u"}
     return out
 
 
