@@ -538,7 +538,17 @@ def test_several_suggestions_need_pick(rcli, tmp_path):
     # Majumdar-Papapetrou: U = 1 + m1/|x - x1| + m2/|x - x2| (S. D. Majumdar, Phys. Rev. 72 (1947) 390;
     # A. Papapetrou, Proc. R. Irish Acad. A 51 (1947) 191; value recalled from memory) with the square of
     # (z + d) lost: restoring it and dropping the second hole both give an electrovacuum metric
+    # The bundled file declares Petrov type I, which rules out dropping the second hole (one centre is
+    # extremal Reissner-Nordstrom, type D): with the declaration the one credible repair is written.
     path = slip(tmp_path, "majumdar-papapetrou", "m2/sqrt(x**2 + y**2 + (z + d)**2)", "m2/sqrt(x**2 + y**2 + (z + d))")
+    r = rcli("repair", str(path), "--write")
+    assert r.exit_code == 0, r.output
+    assert path.read_text() == BUNDLED["majumdar-papapetrou"].read_text()
+    # without it both repairs pass every check the file states, so --write asks for --pick
+    decl = 'petrov-type = "I"\n'
+    original = BUNDLED["majumdar-papapetrou"].read_text().replace(decl, "")
+    path = slip(tmp_path, "majumdar-papapetrou", "m2/sqrt(x**2 + y**2 + (z + d)**2)", "m2/sqrt(x**2 + y**2 + (z + d))")
+    path.write_text(path.read_text().replace(decl, ""))
     before = path.read_text()
     r = rcli("repair", str(path), "--write")
     assert r.exit_code == 2 and r.stderr.startswith("Error: --write: 2 suggestions: choose one with --pick RANK")
@@ -546,4 +556,4 @@ def test_several_suggestions_need_pick(rcli, tmp_path):
     assert path.read_text() == before
     r = rcli("repair", str(path), "--write", "--pick", "1")
     assert r.exit_code == 0, r.output
-    assert path.read_text() == BUNDLED["majumdar-papapetrou"].read_text()
+    assert path.read_text() == original
