@@ -299,7 +299,7 @@ def _perfect_fluid(geometry, spec, include_lambda):
         for cond, keys in uses.items()}
     out["hawking_ellis_type"] = "I"
     out["eigenvalues"] = {"rho": _show(geometry, rho8), "pressures": {"fluid": _show(geometry, p8)},
-                          "timelike": "the fluid's velocity u"}
+                          "timelike": ",".join(str(geometry.coords[a]) for a in range(n) if not z(u[a]))}
     return out
 
 
