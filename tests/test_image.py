@@ -111,6 +111,8 @@ def test_kerr_shadow_outline_against_bardeen(inclination):
     # beta = +-sqrt(eta + a^2 cos^2(theta_O) - xi^2 cot^2(theta_O)) (units of M, divided
     # by the observer's r_O = 1000 M for angles; the finite distance changes them by O(M/r_O) = 1e-3 relative).
     # 40x40 pixels, field of view 0.024 rad (about 5 s); the 256x256 run is the benchmark.
+    from _shadow import bardeen_curve
+
     from gravicat.physics.camera import shadow_outline, trace_image
 
     doc, spec, system, vals = _system("kerr", "boyer-lindquist")
@@ -121,14 +123,7 @@ def test_kerr_shadow_outline_against_bardeen(inclination):
     image = trace_image(system, camera, Stops(radial=1, inner=1.01 * rh, outer=2 * r_obs, polar=2), size=40,
                         fov=0.024, max_steps=4000, max_cpu=120)
     outline = np.array(shadow_outline(image))
-    r = np.linspace(1.0001, 4.9999, 20000)
-    xi = (r * r * (3 * M - r) - a * a * (r + M)) / (a * (r - M))
-    eta = r**3 * (4 * a * a * M - r * (r - 3 * M) ** 2) / (a * a * (r - M) ** 2)
-    c, s = math.cos(inclination), math.sin(inclination)
-    b2 = eta + a * a * c * c - xi * xi * c * c / (s * s)
-    keep = b2 >= 0
-    curve = np.vstack([np.column_stack([-xi[keep] / s, np.sqrt(b2[keep])]),
-                       np.column_stack([-xi[keep] / s, -np.sqrt(b2[keep])])]) / r_obs
+    curve = bardeen_curve(M, a, inclination, r_obs)
     dist = np.min(np.hypot(outline[:, None, 0] - curve[None, :, 0], outline[:, None, 1] - curve[None, :, 1]), axis=1)
     assert len(outline) > 40
     assert dist.max() <= image.pixel

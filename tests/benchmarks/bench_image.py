@@ -102,6 +102,12 @@ def main() -> None:
 
 
 def outline(size: int) -> None:
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # tests/_shadow.py
+    from _shadow import bardeen_curve
+
     from gravicat.export.hamiltonian import hamiltonian_system
     from gravicat.format.bundled import bundled_path, read_bundled
     from gravicat.format.metricfile import build_chart
@@ -122,14 +128,7 @@ def outline(size: int) -> None:
                             fov=0.024, max_steps=4000, max_cpu=3600)
         seconds = time.process_time() - cpu
         edge = np.array(shadow_outline(image))
-        r = np.linspace(1.0001, 4.9999, 20000)
-        xi = (r * r * (3 * M - r) - a * a * (r + M)) / (a * (r - M))
-        eta = r**3 * (4 * a * a * M - r * (r - 3 * M) ** 2) / (a * a * (r - M) ** 2)
-        c, s = math.cos(inclination), math.sin(inclination)
-        b2 = eta + a * a * c * c - xi * xi * c * c / (s * s)
-        keep = b2 >= 0
-        curve = np.vstack([np.column_stack([-xi[keep] / s, np.sqrt(b2[keep])]),
-                           np.column_stack([-xi[keep] / s, -np.sqrt(b2[keep])])]) / r_obs
+        curve = bardeen_curve(M, a, inclination, r_obs)
         dist = np.array([np.min(np.hypot(px - curve[:, 0], py - curve[:, 1])) for px, py in edge])
         print(f"Kerr a = 0.9 shadow {name}, {size}x{size}, pixel {image.pixel:.2e} rad: {len(edge)} edge points, "
               f"largest distance to Bardeen's curve {dist.max() / image.pixel:.2f} pixels, median "
